@@ -1,0 +1,8 @@
+//! Pure numeric code: no threads, devices, files or screens.
+
+pub mod clip;
+pub mod level;
+pub mod sinefit;
+pub mod tone;
+pub mod truepeak;
+pub mod window;

@@ -1,0 +1,173 @@
+//! Cosine-sum windows (periodic form) and their figures of merit.
+//!
+//! `w[n] = Σ a_k cos(2πkn/N)`; coefficients from Harris 1978 (Hann, 4-term Blackman-Harris),
+//! Albrecht 2001 (7-term Blackman-Harris) and Heinzel, Rüdiger & Schilling 2002 (HFT flat-tops).
+
+use std::f64::consts::PI;
+
+/// The windows brink knows. Each is a periodic cosine sum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Window {
+    /// Hann (Harris 1978).
+    Hann,
+    /// 4-term Blackman-Harris, −92 dB sidelobes (Harris 1978).
+    BlackmanHarris4,
+    /// 7-term Blackman-Harris, ≈ −180 dB sidelobes (Albrecht 2001).
+    BlackmanHarris7,
+    /// HFT90D flat-top (Heinzel 2002).
+    Hft90d,
+    /// HFT95 flat-top (Heinzel 2002).
+    Hft95,
+}
+
+impl Window {
+    /// The cosine-sum coefficients `a_0, a_1, ...` with alternating signs.
+    pub fn coefficients(self) -> &'static [f64] {
+        match self {
+            Window::Hann => &[0.5, -0.5],
+            Window::BlackmanHarris4 => &[0.35875, -0.48829, 0.14128, -0.01168],
+            Window::BlackmanHarris7 => &[
+                0.271_051_400_693_42,
+                -0.433_297_939_234_48,
+                0.218_122_999_543_11,
+                -0.065_925_446_388_03,
+                0.010_811_742_098_37,
+                -0.000_776_584_825_22,
+                0.000_013_887_217_35,
+            ],
+            Window::Hft90d => &[1.0, -1.942604, 1.340318, -0.440811, 0.043097],
+            Window::Hft95 => &[1.0, -1.9383379, 1.3045202, -0.4028270, 0.0350665],
+        }
+    }
+
+    /// Half-width of the main lobe in bins (a K-term cosine sum has zeros at ±K bins).
+    pub fn main_lobe_half_width(self) -> usize {
+        self.coefficients().len()
+    }
+
+    /// Fill `out` with the periodic window of length `out.len()`.
+    pub fn fill(self, out: &mut [f64]) {
+        let n = out.len();
+        if n == 0 {
+            return;
+        }
+        let coeffs = self.coefficients();
+        for (i, w) in out.iter_mut().enumerate() {
+            let x = 2.0 * PI * i as f64 / n as f64;
+            *w = coeffs
+                .iter()
+                .enumerate()
+                .map(|(k, a)| a * (k as f64 * x).cos())
+                .sum();
+        }
+    }
+
+    /// The periodic window of length `n`.
+    pub fn generate(self, n: usize) -> Vec<f64> {
+        let mut w = vec![0.0; n];
+        self.fill(&mut w);
+        w
+    }
+}
+
+/// Coherent gain `Σw/N`.
+pub fn coherent_gain(w: &[f64]) -> f64 {
+    if w.is_empty() {
+        return 0.0;
+    }
+    w.iter().sum::<f64>() / w.len() as f64
+}
+
+/// Equivalent noise bandwidth in bins, `N·Σw²/(Σw)²`.
+pub fn enbw_bins(w: &[f64]) -> f64 {
+    let s1: f64 = w.iter().sum();
+    let s2: f64 = w.iter().map(|x| x * x).sum();
+    if s1 == 0.0 {
+        return 0.0;
+    }
+    w.len() as f64 * s2 / (s1 * s1)
+}
+
+/// Magnitude response of the window at `offset_bins` from a bin centre, relative to its DC gain,
+/// computed by direct summation (used for scalloping-loss and sidelobe figures).
+pub fn response_at(w: &[f64], offset_bins: f64) -> f64 {
+    let n = w.len() as f64;
+    let (mut re, mut im) = (0.0, 0.0);
+    for (i, &x) in w.iter().enumerate() {
+        let ph = -2.0 * PI * offset_bins * i as f64 / n;
+        re += x * ph.cos();
+        im += x * ph.sin();
+    }
+    (re * re + im * im).sqrt() / w.iter().sum::<f64>()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn db(x: f64) -> f64 {
+        20.0 * x.log10()
+    }
+
+    // ENBW and scalloping loss: Harris 1978 Table 1, Heinzel 2002 Appendix C, Albrecht 2001
+    // (figures as collected in shared/reference-values.md §1).
+    #[test]
+    fn enbw_and_scalloping_match_published_figures() {
+        let cases = [
+            (Window::Hann, 1.5000, Some(1.4236)),
+            (Window::BlackmanHarris4, 2.0044, Some(0.8256)),
+            (Window::BlackmanHarris7, 2.6319, Some(0.4846)),
+            (Window::Hft90d, 3.8832, None),
+            (Window::Hft95, 3.8112, None),
+        ];
+        for (win, enbw, scallop) in cases {
+            let w = win.generate(4096);
+            assert!(
+                (enbw_bins(&w) - enbw).abs() < 2e-4,
+                "{win:?}: ENBW {} vs {enbw}",
+                enbw_bins(&w)
+            );
+            if let Some(s) = scallop {
+                let loss = -db(response_at(&w, 0.5));
+                assert!((loss - s).abs() < 2e-3, "{win:?}: scallop {loss} vs {s}");
+            }
+        }
+    }
+
+    // Flat-top amplitude flatness: Heinzel 2002 gives ±0.0039 dB (HFT90D) and ±0.0044 dB (HFT95)
+    // across a bin.
+    #[test]
+    fn flat_tops_are_flat_within_published_bounds() {
+        for (win, bound) in [(Window::Hft90d, 0.0039), (Window::Hft95, 0.0044)] {
+            let w = win.generate(2048);
+            for i in 0..=10 {
+                let off = i as f64 * 0.05;
+                let err = db(response_at(&w, off)).abs();
+                assert!(err <= bound + 2e-4, "{win:?} at {off} bins: {err} dB");
+            }
+        }
+    }
+
+    // Highest sidelobe of the 4-term Blackman-Harris: −92 dB (Harris 1978); 7-term below −170 dB
+    // (Albrecht 2001 quotes ≈ −180 dB).
+    #[test]
+    fn sidelobes_stay_below_published_levels() {
+        let w = Window::BlackmanHarris4.generate(1024);
+        let worst = (1..400)
+            .map(|i| db(response_at(&w, 4.0 + i as f64 * 0.05)))
+            .fold(f64::MIN, f64::max);
+        assert!(worst < -91.5 && worst > -93.5, "BH4 worst sidelobe {worst}");
+        let w = Window::BlackmanHarris7.generate(1024);
+        let worst = (0..200)
+            .map(|i| db(response_at(&w, 7.2 + i as f64 * 0.1)))
+            .fold(f64::MIN, f64::max);
+        assert!(worst < -170.0, "BH7 worst sidelobe {worst}");
+    }
+
+    #[test]
+    fn empty_window_is_harmless() {
+        assert!(Window::Hann.generate(0).is_empty());
+        assert_eq!(coherent_gain(&[]), 0.0);
+        assert_eq!(enbw_bins(&[]), 0.0);
+    }
+}
