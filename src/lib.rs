@@ -2,3 +2,5 @@
 #![warn(missing_docs)]
 
 pub mod dsp;
+pub mod gen;
+pub mod source;

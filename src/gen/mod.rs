@@ -1,0 +1,1 @@
+//! Test-signal synthesis (`brink gen`).
