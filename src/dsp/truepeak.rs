@@ -127,6 +127,8 @@ pub struct TruePeak {
     /// How many real samples the history holds (up to `TAPS − 1`).
     filled: usize,
     max_abs: f32,
+    /// Highest value since the last [`TruePeak::take_interval_peak`].
+    interval: f32,
 }
 
 impl TruePeak {
@@ -150,6 +152,7 @@ impl TruePeak {
             buf: vec![0.0; TAPS - 1 + BLOCK],
             filled: 0,
             max_abs: 0.0,
+            interval: 0.0,
         }
     }
 
@@ -168,9 +171,15 @@ impl TruePeak {
         self.max_abs
     }
 
-    /// Clear the reading, keeping the filter history.
+    /// Clear the readings, keeping the filter history.
     pub fn clear_peak(&mut self) {
         self.max_abs = 0.0;
+        self.interval = 0.0;
+    }
+
+    /// The highest value since the previous call (or the start), and start a new interval.
+    pub fn take_interval_peak(&mut self) -> f32 {
+        std::mem::take(&mut self.interval)
     }
 
     /// Feed samples.
@@ -183,8 +192,9 @@ impl TruePeak {
     fn process_block(&mut self, x: &[f32]) {
         let h = TAPS - 1;
         let raw_max = x.iter().fold(0.0f32, |m, v| m.max(v.abs()));
-        self.max_abs = self.max_abs.max(raw_max);
+        self.interval = self.interval.max(raw_max);
         if self.phases.is_empty() {
+            self.max_abs = self.max_abs.max(self.interval);
             return;
         }
         let n = x.len();
@@ -193,7 +203,7 @@ impl TruePeak {
             .iter()
             .fold(0.0f32, |m, v| m.max(v.abs()));
         // Exact skip: no output of this block can exceed bound_gain · max|x| over the spans.
-        if raw_max.max(hist_max) * self.bound_gain > self.max_abs {
+        if raw_max.max(hist_max) * self.bound_gain > self.interval {
             // Output j (0-based over the block) uses buf[j .. j + TAPS] ending at sample j + h.
             // It is valid when all of its TAPS samples are real: j + h − (TAPS−1) ≥ h − filled,
             // i.e. j ≥ h − filled.
@@ -203,9 +213,10 @@ impl TruePeak {
                 for phase in &self.phases {
                     best = best.max(fir_max_abs(&self.buf[j0..h + n], phase));
                 }
-                self.max_abs = self.max_abs.max(best);
+                self.interval = self.interval.max(best);
             }
         }
+        self.max_abs = self.max_abs.max(self.interval);
         self.filled = (self.filled + n).min(h);
         // Keep the last h samples as history.
         self.buf.copy_within(n..n + h, 0);

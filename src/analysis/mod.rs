@@ -1,0 +1,6 @@
+//! Stateful analysers built on `dsp`: per-channel measurement and its reports.
+
+pub mod channel;
+pub mod report;
+
+pub use channel::{ChannelAnalyzer, ChannelSettings};

@@ -1,0 +1,4 @@
+//! Where results go: readable text and JSON lines.
+
+pub mod json;
+pub mod text;

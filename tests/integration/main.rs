@@ -1,0 +1,6 @@
+//! brink's integration tests: one binary, shared helpers in `util`.
+#![allow(clippy::unwrap_used)] // tests state their expectations by unwrapping
+
+mod accuracy;
+mod closed_form;
+mod util;

@@ -1,0 +1,74 @@
+//! Shared helpers: signal synthesis in f64 and the real analysis path.
+
+use std::f64::consts::PI;
+
+use brink::analysis::report::ChannelReport;
+use brink::analysis::{ChannelAnalyzer, ChannelSettings};
+
+/// Run the per-channel analyser exactly as `scan` does, with the tone span covering everything.
+pub fn analyze(x: &[f32], rate: u32, settings: ChannelSettings) -> ChannelReport {
+    let mut a = ChannelAnalyzer::new(1, rate, settings, 0..x.len() as u64, None);
+    // Feed in uneven blocks, as a real source would.
+    let mut rest = x;
+    let mut k = 0;
+    while !rest.is_empty() {
+        let n = [4096, 1000, 333, 8192][k % 4].min(rest.len());
+        a.process(&rest[..n]);
+        rest = &rest[n..];
+        k += 1;
+    }
+    a.finish().0
+}
+
+/// `Σ amp·sin(2π·f·n/rate + phase)` over the components, as f64.
+pub fn tones(rate: u32, frames: usize, parts: &[(f64, f64, f64)]) -> Vec<f64> {
+    (0..frames)
+        .map(|n| {
+            let t = n as f64 / rate as f64;
+            parts
+                .iter()
+                .map(|&(f, a, ph)| a * (2.0 * PI * f * t + ph).sin())
+                .sum()
+        })
+        .collect()
+}
+
+/// Narrow to f32 samples.
+pub fn to_f32(x: &[f64]) -> Vec<f32> {
+    x.iter().map(|&v| v as f32).collect()
+}
+
+/// Round to an n-bit integer grid (no dither), returned as normalised f32.
+pub fn quantise(x: &[f64], bits: u32) -> Vec<f32> {
+    let half = 2f64.powi(bits as i32 - 1);
+    x.iter()
+        .map(|&v| ((v * half).round().clamp(-half, half - 1.0) / half) as f32)
+        .collect()
+}
+
+/// Deterministic Gaussian noise (Box-Muller over a small xorshift generator), RMS `rms`.
+pub fn gaussian(frames: usize, rms: f64, seed: u64) -> Vec<f64> {
+    let mut s = seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1;
+    let mut uniform = move || {
+        s ^= s << 13;
+        s ^= s >> 7;
+        s ^= s << 17;
+        ((s >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    };
+    (0..frames)
+        .map(|_| {
+            let (u1, u2) = (uniform(), uniform());
+            rms * (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
+        })
+        .collect()
+}
+
+/// dB of a linear ratio.
+pub fn db(x: f64) -> f64 {
+    20.0 * x.log10()
+}
+
+/// Linear amplitude of a dB value.
+pub fn lin(d: f64) -> f64 {
+    10f64.powf(d / 20.0)
+}
