@@ -1,8 +1,104 @@
 //! brink: clipping, true peak and harmonic distortion measurement, live or from files.
+//!
+//! The data's path: [`source`] (where samples come from) → [`dsp`] (pure numerics) →
+//! [`analysis`] (per-channel state and reports) → [`sink`] (text, JSON). [`scan`] drives the path
+//! for files; [`gen`] makes test signals. The binary only calls [`run`].
 #![warn(missing_docs)]
 
 pub mod analysis;
+pub mod cli;
 pub mod dsp;
 pub mod gen;
+pub mod scan;
 pub mod sink;
 pub mod source;
+
+use std::ffi::OsString;
+use std::io::{self, BufWriter, Write};
+use std::process::ExitCode;
+
+use clap::Parser;
+
+use cli::{Cli, Command, ScanArgs};
+
+/// Exit status: every file was measured (clipping found or not).
+pub const EXIT_OK: u8 = 0;
+/// Exit status: at least one file could not be measured; the others were.
+pub const EXIT_FILE_ERROR: u8 = 1;
+/// Exit status: the command line was wrong.
+pub const EXIT_USAGE: u8 = 2;
+
+/// Parse `args` (program name first) and run the chosen mode; returns the process exit code.
+pub fn run<I, T>(args: I) -> ExitCode
+where
+    I: IntoIterator<Item = T>,
+    T: Into<OsString> + Clone,
+{
+    let cli = match Cli::try_parse_from(args) {
+        Ok(c) => c,
+        Err(e) => {
+            let _ = e.print();
+            return ExitCode::from(e.exit_code().clamp(0, 255) as u8);
+        }
+    };
+    let stdout = io::stdout();
+    let mut out = BufWriter::new(stdout.lock());
+    let mut err = io::stderr();
+    let code = match cli.command {
+        Command::Scan(args) => run_scan(&args, &mut out, &mut err),
+        Command::Gen(args) => match gen::run(&args, &mut out) {
+            Ok(()) => EXIT_OK,
+            Err(e) => {
+                let _ = writeln!(err, "brink gen: {e}");
+                EXIT_FILE_ERROR
+            }
+        },
+    };
+    match out.flush() {
+        Err(e) if e.kind() != io::ErrorKind::BrokenPipe => {
+            let _ = writeln!(err, "brink: cannot write output: {e}");
+            ExitCode::from(EXIT_FILE_ERROR)
+        }
+        _ => ExitCode::from(code),
+    }
+}
+
+/// `brink scan`: each file is measured and reported on its own; a bad file is reported on
+/// `err` and the rest go on.
+pub fn run_scan<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 {
+    let settings = match args.settings() {
+        Ok(s) => s,
+        Err(msg) => {
+            let _ = writeln!(err, "brink scan: {msg}");
+            return EXIT_USAGE;
+        }
+    };
+    let mut code = EXIT_OK;
+    for path in &args.files {
+        let written = match scan::scan_file(path, &settings) {
+            Ok(report) => {
+                let r = if args.json {
+                    sink::json::write_line(out, &report)
+                } else {
+                    sink::text::write_scan(out, &report)
+                };
+                r.and_then(|()| out.flush())
+            }
+            Err(e) => {
+                let _ = writeln!(err, "brink scan: {}: {e}", path.display());
+                code = EXIT_FILE_ERROR;
+                Ok(())
+            }
+        };
+        match written {
+            Ok(()) => {}
+            // The reader went away (`| head`): stop quietly.
+            Err(e) if e.kind() == io::ErrorKind::BrokenPipe => return code,
+            Err(e) => {
+                let _ = writeln!(err, "brink scan: cannot write output: {e}");
+                return EXIT_FILE_ERROR;
+            }
+        }
+    }
+    code
+}

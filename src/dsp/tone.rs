@@ -15,9 +15,12 @@
 //!    **THD+N** (AES17): RMS of everything but the fitted fundamental within the band, relative to
 //!    the total RMS within the band. **SINAD** and **ENOB** after IEEE 1241: fitted sine RMS over the
 //!    full-band fit residual; ENOB = log2(FSR / (NAD·√12)) with full-scale range 2 (±1).
-//! 5. **Odd/even balance** 20·log10(√ΣA_even² / √ΣA_odd²) over H2..; **fall-off**: least-squares
-//!    slope of level (dBc) against log2(order) over the harmonics standing at least
-//!    [`ToneSettings::resolve_margin_db`] above the noise floor, in dB per octave of order.
+//! 5. **Odd/even balance** 20·log10(√ΣA_even² / √ΣA_odd²) over H2.. (`None` when no harmonic
+//!    stands above the noise floor); **fall-off**: least-squares slope of level (dBc) against
+//!    log2(order), in dB per octave of order, over the harmonics standing at least
+//!    [`ToneSettings::resolve_margin_db`] above the noise floor, taken from the dominant family
+//!    (odd orders alone when the even ones are [`FAMILY_MARGIN_DB`] down, and the reverse).
+//!    The noise floor never goes below −180 dBc, the limit of the arithmetic.
 
 use std::f64::consts::PI;
 use std::sync::Arc;
@@ -27,6 +30,10 @@ use realfft::{RealFftPlanner, RealToComplex};
 
 use super::sinefit::{fit4, SineFit};
 use super::window::Window;
+
+/// How far one family of harmonics (odd or even orders) must stand below the other for the
+/// fall-off slope to follow the stronger family alone (dB).
+pub const FAMILY_MARGIN_DB: f64 = 20.0;
 
 /// Settings for tone analysis.
 #[derive(Debug, Clone, PartialEq)]
@@ -359,9 +366,12 @@ impl ToneAnalyzer {
             })
             .map(|k| self.power[k])
             .collect();
+        // Below −180 dBc nothing is measurable in f64 arithmetic on f32 samples: that is the
+        // floor when the record is noiseless (synthetic or exactly periodic signals).
+        let numeric_floor = (a1 * 1e-9).powi(2) / 2.0;
         let noise_floor = median(&mut floor_bins).map(|m| {
             let enbw7 = 2.6319;
-            m / std::f64::consts::LN_2 * enbw7 / 1.0
+            (m / std::f64::consts::LN_2 * enbw7).max(numeric_floor)
         });
         // Per-bin power is in units of mean power per bin; a sine of amplitude A has A²/2.
         let noise_floor_dbc = noise_floor
@@ -386,11 +396,21 @@ impl ToneAnalyzer {
         let even = sum_sq(&|k| k % 2 == 0);
         let odd = sum_sq(&|k| k % 2 == 1);
         let thd_ratio = all.sqrt() / a1;
-        let odd_even_db = (even > 0.0 && odd > 0.0).then(|| 10.0 * (even / odd).log10());
+        // With no harmonic above the floor there is no distortion to characterise.
+        let any_resolved = harmonics.iter().any(|h| h.resolved);
+        let odd_even_db =
+            (any_resolved && even > 0.0 && odd > 0.0).then(|| 10.0 * (even / odd).log10());
 
+        // Fall-off follows the dominant family: odd orders only when the even ones are more
+        // than 20 dB down (symmetric curves), even orders only in the opposite case, else all.
+        let family = |k: usize| match odd_even_db {
+            Some(b) if b < -FAMILY_MARGIN_DB => k % 2 == 1,
+            Some(b) if b > FAMILY_MARGIN_DB => k % 2 == 0,
+            _ => true,
+        };
         let pts: Vec<(f64, f64)> = harmonics
             .iter()
-            .filter(|h| h.resolved)
+            .filter(|h| h.resolved && family(h.order))
             .filter_map(|h| h.level_dbc.map(|l| ((h.order as f64).log2(), l)))
             .collect();
         let falloff_db_per_octave = (pts.len() >= 2).then(|| {

@@ -8,6 +8,14 @@ use crate::analysis::report::{ChannelReport, ScanReport};
 const NONE: &str = "--";
 
 fn opt(v: Option<f64>, prec: usize, signed: bool) -> String {
+    // Avoid "-0.00" for values that round to zero.
+    let v = v.map(|x| {
+        if x.abs() < 0.5 * 10f64.powi(-(prec as i32)) {
+            0.0
+        } else {
+            x
+        }
+    });
     match v {
         Some(x) if signed => format!("{x:+.prec$}"),
         Some(x) => format!("{x:.prec$}"),
@@ -159,7 +167,7 @@ pub fn write_scan<W: Write>(w: &mut W, r: &ScanReport) -> io::Result<()> {
             writeln!(w)?;
             let mut head = String::from("  ch");
             for n in 2..=max_order {
-                head.push_str(&format!("{:>8}", format!("H{n}")));
+                head.push_str(&format!("{:>9}", format!("H{n}")));
             }
             writeln!(
                 w,
@@ -179,7 +187,7 @@ pub fn write_scan<W: Write>(w: &mut W, r: &ScanReport) -> io::Result<()> {
                             format!("{}{}{}", opt(h.level_dbc, 1, false), tag, floor)
                         })
                         .unwrap_or_else(|| NONE.to_string());
-                    line.push_str(&format!("{cell:>8}"));
+                    line.push_str(&format!("{cell:>9}"));
                 }
                 writeln!(w, "{line}")?;
             }

@@ -1,1 +1,5 @@
 //! Where samples come from.
+
+pub mod wav;
+
+pub use wav::{WavError, WavInfo, WavSource};
