@@ -1,11 +1,18 @@
 //! `brink scan`: measure WAV files offline with the same analysers the live pipeline uses.
 
 use std::path::Path;
+use std::sync::Arc;
 
-use crate::analysis::report::{ScanReport, TimelineSlice, SCAN_FORMAT};
+use crate::analysis::report::{
+    ChannelReport, ScanReport, SliceChannel, TimelineSlice, SCAN_FORMAT,
+};
 use crate::analysis::{ChannelAnalyzer, ChannelSettings};
 use crate::dsp::clip::ClipSettings;
 use crate::source::wav::{WavError, WavSource};
+use std::collections::VecDeque;
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Condvar, Mutex, MutexGuard};
+use std::time::Duration;
 
 /// Settings for a scan.
 #[derive(Debug, Clone, PartialEq)]
@@ -28,8 +35,11 @@ impl Default for ScanSettings {
     }
 }
 
+/// Most decoded blocks held at once; the decoder helps analyse while the queue is full.
+const QUEUE: usize = 8;
+
 /// Frames read per block.
-const BLOCK_FRAMES: usize = 16_384;
+const BLOCK_FRAMES: usize = 32_768;
 
 /// The centred span of `span_frames` in a file of `frames` (the whole file when shorter).
 pub fn centre_span(frames: u64, span_frames: u64) -> std::ops::Range<u64> {
@@ -53,31 +63,57 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
     let slice_len = settings
         .every_s
         .map(|s| (s * rate as f64).round().max(1.0) as u64);
-    let mut analyzers: Vec<ChannelAnalyzer> = (0..info.channels)
+    let analyzers: Vec<ChannelAnalyzer> = (0..info.channels)
         .map(|c| ChannelAnalyzer::new(c + 1, rate, chs.clone(), span.clone(), slice_len))
         .collect();
 
     let n_ch = info.channels;
-    let mut inter = Vec::with_capacity(BLOCK_FRAMES * n_ch);
-    let mut planar: Vec<Vec<f32>> = vec![Vec::with_capacity(BLOCK_FRAMES); n_ch];
-    let mut frames = 0u64;
-    loop {
-        let got = src.read_frames(&mut inter, BLOCK_FRAMES)?;
-        if got == 0 {
-            break;
+    let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let pool = Pool::new(analyzers);
+    let frames = std::thread::scope(|scope| -> Result<u64, WavError> {
+        let helpers: Vec<_> = (1..threads.min(n_ch + 1))
+            .map(|t| {
+                let pool = &pool;
+                scope.spawn(move || pool.work_until_done(t))
+            })
+            .collect();
+        let mut frames = 0u64;
+        let mut result = Ok(());
+        let mut inter = Vec::with_capacity(BLOCK_FRAMES * n_ch);
+        loop {
+            match src.read_frames(&mut inter, BLOCK_FRAMES) {
+                Ok(0) => break,
+                Ok(n) => {
+                    frames += n as u64;
+                    // Split into channel planes once, here, so the analysers read contiguous data.
+                    let mut planes = pool.spare_planes();
+                    planes.resize_with(n_ch, Vec::new);
+                    for (c, plane) in planes.iter_mut().enumerate() {
+                        plane.clear();
+                        plane.extend(inter.chunks_exact(n_ch).map(|frame| frame[c]));
+                    }
+                    pool.push(planes, 0);
+                }
+                Err(e) => {
+                    result = Err(e);
+                    break;
+                }
+            }
         }
-        for (c, plane) in planar.iter_mut().enumerate() {
-            plane.clear();
-            plane.extend(inter.iter().skip(c).step_by(n_ch).take(got));
+        pool.close();
+        pool.work_until_done(0);
+        for h in helpers {
+            if let Err(panic) = h.join() {
+                std::panic::resume_unwind(panic);
+            }
         }
-        process_planes(&mut analyzers, &planar);
-        frames += got as u64;
-    }
+        result.map(|()| frames)
+    })?;
+    let finished = pool.finish();
 
     let mut channels = Vec::with_capacity(n_ch);
     let mut per_channel_slices = Vec::with_capacity(n_ch);
-    for a in &mut analyzers {
-        let (report, slices) = a.finish();
+    for (report, slices) in finished {
         channels.push(report);
         per_channel_slices.push(slices);
     }
@@ -106,26 +142,199 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
     })
 }
 
-/// Run each channel's analyser on its plane; channels are shared between two threads when
-/// there are several.
-fn process_planes(analyzers: &mut [ChannelAnalyzer], planes: &[Vec<f32>]) {
-    if analyzers.len() < 2 {
-        for (a, p) in analyzers.iter_mut().zip(planes) {
-            a.process(p);
+/// One channel's analyser and how far it has got.
+struct Lane {
+    state: Mutex<LaneState>,
+    /// Index of the next block this channel needs (mirrors `LaneState::next` for lock-free reads).
+    next: AtomicU64,
+}
+
+struct LaneState {
+    analyzer: ChannelAnalyzer,
+    next: u64,
+}
+
+struct Queue {
+    /// `blocks[i]` is block number `base + i`.
+    blocks: VecDeque<Arc<Planes>>,
+    base: u64,
+    produced: u64,
+    closed: bool,
+    spare: Vec<Planes>,
+}
+
+/// One block of decoded audio, a plane per channel.
+type Planes = Vec<Vec<f32>>;
+
+/// Analysis work shared by every thread: each channel takes the decoded blocks in order, and
+/// any idle thread (the decoder included, while the queue is full) may take a channel's next
+/// block, so a heavy channel does not hold the others up.
+struct Pool {
+    lanes: Vec<Lane>,
+    queue: Mutex<Queue>,
+    changed: Condvar,
+}
+
+/// Lock a mutex, carrying on with the data if another thread panicked while holding it (that
+/// panic is re-raised when the thread is joined).
+fn lock<T>(m: &Mutex<T>) -> MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(|poison| poison.into_inner())
+}
+
+impl Pool {
+    fn new(analyzers: Vec<ChannelAnalyzer>) -> Self {
+        Pool {
+            lanes: analyzers
+                .into_iter()
+                .map(|analyzer| Lane {
+                    state: Mutex::new(LaneState { analyzer, next: 0 }),
+                    next: AtomicU64::new(0),
+                })
+                .collect(),
+            queue: Mutex::new(Queue {
+                blocks: VecDeque::new(),
+                base: 0,
+                produced: 0,
+                closed: false,
+                spare: Vec::new(),
+            }),
+            changed: Condvar::new(),
         }
-        return;
     }
-    let mid = analyzers.len() / 2;
-    let (left, right) = analyzers.split_at_mut(mid);
-    let (pl, pr) = planes.split_at(mid);
-    std::thread::scope(|s| {
-        s.spawn(|| {
-            for (a, p) in left.iter_mut().zip(pl) {
-                a.process(p);
+
+    /// An emptied block, or a new one.
+    fn spare_planes(&self) -> Planes {
+        lock(&self.queue).spare.pop().unwrap_or_default()
+    }
+
+    /// Queue a decoded block; while the queue is full, do analysis work instead of waiting.
+    fn push(&self, block: Planes, me: usize) {
+        loop {
+            {
+                let mut q = lock(&self.queue);
+                if q.blocks.len() < QUEUE {
+                    q.blocks.push_back(Arc::new(block));
+                    q.produced += 1;
+                    drop(q);
+                    self.changed.notify_all();
+                    return;
+                }
             }
-        });
-        for (a, p) in right.iter_mut().zip(pr) {
-            a.process(p);
+            if !self.work_once(me) {
+                let q = lock(&self.queue);
+                if q.blocks.len() >= QUEUE {
+                    let _ = self.changed.wait_timeout(q, Duration::from_millis(5));
+                }
+            }
         }
-    });
+    }
+
+    fn close(&self) {
+        lock(&self.queue).closed = true;
+        self.changed.notify_all();
+    }
+
+    /// Process one block of some channel; false when no channel could take one now.
+    fn work_once(&self, me: usize) -> bool {
+        let n = self.lanes.len();
+        for k in 0..n {
+            let lane = &self.lanes[(me + k) % n];
+            let Ok(mut st) = lane.state.try_lock() else {
+                continue;
+            };
+            let block = {
+                let q = lock(&self.queue);
+                if st.next < q.produced {
+                    q.blocks.get((st.next - q.base) as usize).cloned()
+                } else {
+                    None
+                }
+            };
+            let Some(block) = block else { continue };
+            let c = (me + k) % n;
+            if let Some(plane) = block.get(c) {
+                st.analyzer.process(plane);
+            }
+            st.next += 1;
+            lane.next.store(st.next, Ordering::Release);
+            drop(block);
+            self.trim();
+            return true;
+        }
+        false
+    }
+
+    /// Drop blocks every channel is past, keeping their buffers for reuse.
+    fn trim(&self) {
+        let low = self
+            .lanes
+            .iter()
+            .map(|l| l.next.load(Ordering::Acquire))
+            .min()
+            .unwrap_or(0);
+        let mut q = lock(&self.queue);
+        let mut freed = false;
+        while q.base < low {
+            let Some(front) = q.blocks.pop_front() else {
+                break;
+            };
+            q.base += 1;
+            freed = true;
+            if let Ok(v) = Arc::try_unwrap(front) {
+                if q.spare.len() < QUEUE {
+                    q.spare.push(v);
+                }
+            }
+        }
+        drop(q);
+        if freed {
+            self.changed.notify_all();
+        }
+    }
+
+    /// Work until the queue is closed and every channel has taken every block.
+    fn work_until_done(&self, me: usize) {
+        loop {
+            if self.work_once(me) {
+                continue;
+            }
+            let q = lock(&self.queue);
+            let all_done = self
+                .lanes
+                .iter()
+                .all(|l| l.next.load(Ordering::Acquire) >= q.produced);
+            if q.closed && all_done {
+                return;
+            }
+            let _ = self.changed.wait_timeout(q, Duration::from_millis(5));
+        }
+    }
+
+    /// Finish every channel (tone analysis included), two threads at a time.
+    fn finish(self) -> Vec<(ChannelReport, Vec<SliceChannel>)> {
+        let mut analyzers: Vec<ChannelAnalyzer> = self
+            .lanes
+            .into_iter()
+            .map(|l| {
+                l.state
+                    .into_inner()
+                    .unwrap_or_else(|p| p.into_inner())
+                    .analyzer
+            })
+            .collect();
+        let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
+        let per = analyzers.len().div_ceil(threads.max(1)).max(1);
+        std::thread::scope(|scope| {
+            let handles: Vec<_> = analyzers
+                .chunks_mut(per)
+                .map(|group| {
+                    scope.spawn(move || group.iter_mut().map(|a| a.finish()).collect::<Vec<_>>())
+                })
+                .collect();
+            handles
+                .into_iter()
+                .flat_map(|h| h.join().unwrap_or_else(|p| std::panic::resume_unwind(p)))
+                .collect()
+        })
+    }
 }

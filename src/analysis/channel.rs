@@ -37,6 +37,9 @@ impl Default for ChannelSettings {
     }
 }
 
+/// Samples handed to the level statistics and true-peak meter at a time (the meter's block).
+const TP_BLOCK: usize = 4096;
+
 /// Most run levels kept per kind and side for the median clip level.
 const LEVELS_KEPT: usize = 65_536;
 
@@ -174,6 +177,8 @@ pub struct ChannelAnalyzer {
     tally: ClipTally,
     tone_span: Range<u64>,
     tone_buf: Vec<f32>,
+    /// The span's analysis, done as soon as the span is complete.
+    tone_result: Option<Option<ToneReport>>,
     slices: Option<SliceState>,
     tone: ToneAnalyzer,
 }
@@ -201,6 +206,7 @@ impl ChannelAnalyzer {
             tally: ClipTally::default(),
             tone_buf: Vec::with_capacity(cap),
             tone_span,
+            tone_result: None,
             slices: slice_len.filter(|&l| l > 0).map(|len| SliceState {
                 len,
                 levels: LevelStats::default(),
@@ -238,11 +244,20 @@ impl ChannelAnalyzer {
         if lo < hi {
             self.tone_buf
                 .extend_from_slice(&x[(lo - start) as usize..(hi - start) as usize]);
+            if hi == self.tone_span.end {
+                // Analyse now, while the rest of the stream is still being read.
+                let rate = self.rate as f64;
+                let t = self.tone.analyze(&self.tone_buf, rate, &self.settings.tone);
+                self.tone_result = Some(t);
+                self.tone_buf = Vec::new();
+            }
         }
 
         if self.slices.is_none() {
-            self.levels.process(x);
-            self.tp.process(x);
+            for block in x.chunks(TP_BLOCK) {
+                let peak = self.levels.process(block);
+                self.tp.process_with_peak(block, peak);
+            }
         } else {
             // Slices: levels per slice (merged into the totals when a slice closes) and the
             // true-peak meter read per interval.
@@ -254,8 +269,10 @@ impl ChannelAnalyzer {
                 };
                 let room = (sl.len - at % sl.len) as usize;
                 let take = room.min(rest.len());
-                sl.levels.process(&rest[..take]);
-                self.tp.process(&rest[..take]);
+                for block in rest[..take].chunks(TP_BLOCK) {
+                    let peak = sl.levels.process(block);
+                    self.tp.process_with_peak(block, peak);
+                }
                 sl.buf.extend_from_slice(&rest[..take]);
                 at += take as u64;
                 rest = &rest[take..];
@@ -308,7 +325,10 @@ impl ChannelAnalyzer {
         self.tally.close_episode(rate, &self.settings);
         self.close_slice();
 
-        let tone = self.tone.analyze(&self.tone_buf, rate, &self.settings.tone);
+        let tone = match self.tone_result.take() {
+            Some(t) => t,
+            None => self.tone.analyze(&self.tone_buf, rate, &self.settings.tone),
+        };
         let span_start = self.tone_span.start.min(self.pos) as f64 / rate;
         let distortion = tone.map(|t| distortion_report(&t, span_start, rate));
         let peak = self.levels.peak as f64;

@@ -115,7 +115,7 @@ struct OverRun {
 }
 
 /// Streaming clip detector for one channel.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Copy)]
 pub struct ClipDetector {
     s: ClipSettings,
     pos: u64,
@@ -161,10 +161,107 @@ impl ClipDetector {
     }
 
     /// Feed samples; completed runs are passed to `emit` in stream order per kind.
+    ///
+    /// Most samples cannot matter: away from plateaus and full scale every sample differs from
+    /// its neighbour by more than the tolerance, so each is a run of one that never counts. Per
+    /// chunk of 64, a bit mask marks the samples that can matter (within the tolerance of the
+    /// previous sample, or at full scale); while nothing is in flight the detector jumps from one
+    /// marked sample to the next, setting the state exactly as stepping would have.
     pub fn process(&mut self, samples: &[f32], mut emit: impl FnMut(ClipRun)) {
-        for &x in samples {
-            self.step(x, &mut emit);
+        const CHUNK: usize = 64;
+        // Jumping assumes a lone sample can never be a run that counts.
+        let jumps = self.s.flat_min_run >= 2 && self.s.min_over_run >= 1;
+        // Work on a local copy so the state can live in registers across the loop.
+        let mut d = *self;
+        for chunk in samples.chunks(CHUNK) {
+            if !jumps {
+                for &x in chunk {
+                    d.step(x, &mut emit);
+                }
+                continue;
+            }
+            let mask = d.interest_mask(chunk);
+            let mut i = 0;
+            while i < chunk.len() {
+                if d.is_idle() {
+                    let rest = mask >> i;
+                    let j = if rest == 0 {
+                        chunk.len()
+                    } else {
+                        i + rest.trailing_zeros() as usize
+                    };
+                    if j > i {
+                        d.jump(chunk, i, j);
+                        i = j;
+                        continue;
+                    }
+                }
+                d.step(chunk[i], &mut emit);
+                i += 1;
+            }
         }
+        *self = d;
+    }
+
+    /// Bit `i` set when `chunk[i]` is within the tolerance of the sample before it or at full
+    /// scale (`chunk.len()` ≤ 64).
+    #[inline(always)]
+    fn interest_mask(&self, chunk: &[f32]) -> u64 {
+        let (tol, fs) = (self.s.flat_tolerance, self.s.full_scale);
+        let mut prev = self.last1;
+        let mut mask = 0u64;
+        for (i, &x) in chunk.iter().enumerate() {
+            let hit = (x - prev).abs() <= tol || x.abs() >= fs;
+            mask |= u64::from(hit) << i;
+            prev = x;
+        }
+        mask
+    }
+
+    /// Nothing in flight: no over, no plateau awaiting judgement, and the plateau in progress
+    /// too short to count when an unmarked sample ends it.
+    #[inline(always)]
+    fn is_idle(&self) -> bool {
+        self.over.is_none()
+            && self.pending.is_none()
+            && self
+                .run
+                .as_ref()
+                .is_none_or(|r| (r.len as usize) < self.s.flat_min_run)
+    }
+
+    /// Consume the unmarked samples `chunk[i..j]` (`j > i`) while idle: each ends the run before
+    /// it (too short to count) and starts a run of one, so afterwards the run is `chunk[j − 1]`
+    /// alone, preceded by the two samples before it.
+    #[inline(always)]
+    fn jump(&mut self, chunk: &[f32], i: usize, j: usize) {
+        // Sample k of the stream relative to the chunk; k ≥ i − 2 always holds here.
+        let (l1, l2) = (self.last1, self.last2);
+        let sample = |k: isize| -> f32 {
+            if k >= i as isize {
+                chunk[k as usize]
+            } else if k == i as isize - 1 {
+                l1
+            } else {
+                l2
+            }
+        };
+        let x = chunk[j - 1];
+        let before1 = sample(j as isize - 2);
+        let before2 = sample(j as isize - 3);
+        self.pos += (j - i - 1) as u64;
+        self.run = Some(Plateau {
+            start: self.pos,
+            len: 1,
+            min: x,
+            max: x,
+            sum: x as f64,
+            before2,
+            before1,
+        });
+        self.last2 = before1;
+        self.last1 = x;
+        self.pos += 1;
     }
 
     /// End of stream: report runs still open (a plateau cut by the end is not judged).
@@ -176,7 +273,7 @@ impl ClipDetector {
         self.pending = None;
     }
 
-    #[inline]
+    #[inline(always)]
     fn step(&mut self, x: f32, emit: &mut impl FnMut(ClipRun)) {
         let s = self.s;
         // Overs.
@@ -211,9 +308,10 @@ impl ClipDetector {
         }
         match &mut self.run {
             Some(r) => {
-                let lo = r.min.min(x);
-                let hi = r.max.max(x);
-                if hi - lo <= s.flat_tolerance {
+                // Plain comparisons (no NaN fix-ups); a NaN sample ends the run.
+                let lo = if x < r.min { x } else { r.min };
+                let hi = if x > r.max { x } else { r.max };
+                if hi - lo <= s.flat_tolerance && !x.is_nan() {
                     r.min = lo;
                     r.max = hi;
                     r.len += 1;
@@ -249,6 +347,8 @@ impl ClipDetector {
         }
     }
 
+    #[cold]
+    #[inline(never)]
     fn emit_over(&self, o: OverRun, emit: &mut impl FnMut(ClipRun)) {
         if o.len as usize >= self.s.min_over_run {
             emit(ClipRun {
@@ -260,6 +360,7 @@ impl ClipDetector {
         }
     }
 
+    #[inline(never)]
     fn judge(&self, r: Plateau, after1: f32, after2: f32, emit: &mut impl FnMut(ClipRun)) {
         let s = &self.s;
         let level = (r.sum / r.len as f64) as f32;
@@ -300,6 +401,46 @@ mod tests {
         out
     }
 
+    /// The quiet-chunk fast path must report exactly what the per-sample path reports.
+    #[test]
+    fn fast_path_matches_the_sample_by_sample_path() {
+        let mut seed = 0x1234_5678_9abc_def0u64;
+        let mut next = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for case in 0..20 {
+            let clip = 0.3 + 0.05 * case as f64;
+            let f = 0.002 + 0.003 * case as f64;
+            let noise = [1e-4, 1e-3, 3e-3][case % 3];
+            let x: Vec<f32> = (0..20_000)
+                .map(|i| {
+                    let t = 2.0 * std::f64::consts::PI * i as f64;
+                    let v = 0.9 * (f * t).sin();
+                    let v = match (i / 3000) % 3 {
+                        0 => v.clamp(-clip, clip),
+                        1 => v * 1.2,
+                        // A slow chord: many short near-flat stretches that must not count.
+                        _ => 0.3 * (f / 7.0 * t).sin() + 0.25 * (f / 5.3 * t).sin() + 0.01 * v,
+                    };
+                    (v.clamp(-1.0, 1.0) + (next() - 0.5) * noise) as f32
+                })
+                .collect();
+            let s = ClipSettings::default();
+            let fast = runs(&x, s);
+            let mut d = ClipDetector::new(s);
+            let mut slow = Vec::new();
+            for &v in &x {
+                d.step(v, &mut |r| slow.push(r));
+            }
+            d.finish(|r| slow.push(r));
+            assert_eq!(fast, slow, "case {case}");
+            assert!(!fast.is_empty(), "case {case} exercises runs");
+        }
+    }
+
     #[test]
     fn overs_need_three_samples_at_full_scale() {
         let fs = ClipSettings::full_scale_for_bits(Some(16));
@@ -314,6 +455,14 @@ mod tests {
         assert_eq!((overs[0].start, overs[0].len), (4, 3));
         assert_eq!((overs[1].start, overs[1].len), (8, 4));
         assert!(overs[1].level < 0.0);
+    }
+
+    #[test]
+    fn nan_samples_never_make_a_plateau() {
+        let mut x = vec![0.0f32; 10];
+        x.extend([0.5, 0.5, f32::NAN, 0.5, 0.5, 0.5, 0.0, 0.0]);
+        let r = runs(&x, ClipSettings::default());
+        assert!(r.iter().all(|r| r.level.is_finite()), "{r:?}");
     }
 
     #[test]

@@ -29,22 +29,39 @@ pub struct LevelStats {
 }
 
 impl LevelStats {
-    /// Add samples.
-    pub fn process(&mut self, x: &[f32]) {
-        // Per-block partial sums in f64 keep long files exact enough and vectorise well.
-        let mut s = 0.0f64;
-        let mut s2 = 0.0f64;
-        let mut p = self.peak;
-        for &v in x {
-            let d = v as f64;
-            s += d;
-            s2 += d * d;
-            p = p.max(v.abs());
+    /// Add samples; returns the largest |sample| among them (0 for none).
+    pub fn process(&mut self, x: &[f32]) -> f32 {
+        // Eight independent f32 lanes over short chunks (so the loop vectorises and no lane sums
+        // more than 32 values), folded into f64 totals after each chunk.
+        const LANES: usize = 8;
+        const CHUNK: usize = 256;
+        let mut p = [0.0f32; LANES];
+        for chunk in x.chunks(CHUNK) {
+            let mut s = [0.0f32; LANES];
+            let mut s2 = [0.0f32; LANES];
+            let mut lanes = chunk.chunks_exact(LANES);
+            for v in &mut lanes {
+                for i in 0..LANES {
+                    s[i] += v[i];
+                    s2[i] += v[i] * v[i];
+                    // A plain comparison vectorises (f32::max adds NaN fix-ups).
+                    let a = v[i].abs();
+                    p[i] = if a > p[i] { a } else { p[i] };
+                }
+            }
+            for (i, &v) in lanes.remainder().iter().enumerate() {
+                s[i] += v;
+                s2[i] += v * v;
+                let a = v.abs();
+                p[i] = if a > p[i] { a } else { p[i] };
+            }
+            self.sum += s.iter().map(|&v| v as f64).sum::<f64>();
+            self.sum_sq += s2.iter().map(|&v| v as f64).sum::<f64>();
         }
-        self.sum += s;
-        self.sum_sq += s2;
-        self.peak = p;
+        let block_peak = p.iter().fold(0.0f32, |m, &v| m.max(v));
+        self.peak = self.peak.max(block_peak);
         self.count += x.len() as u64;
+        block_peak
     }
 
     /// Merge another set of statistics into this one.

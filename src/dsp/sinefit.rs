@@ -4,6 +4,25 @@
 //! Model: `y[n] ≈ a·cos(ω t_n) + b·sin(ω t_n) + c` with `t_n = n − (N−1)/2` (time centred on the
 //! record, which keeps the normal equations well conditioned).
 
+/// Call `f(i, sin(ω·t_i), cos(ω·t_i))` for `i` in `0..n`, `t_i = i − centre`, stepping a
+/// rotating phasor that is re-anchored exactly every 1024 samples (error stays near 1e-13).
+#[inline]
+pub fn sweep(n: usize, omega: f64, centre: f64, mut f: impl FnMut(usize, f64, f64)) {
+    let (sd, cd) = omega.sin_cos();
+    let mut i = 0;
+    while i < n {
+        let (mut s, mut c) = (omega * (i as f64 - centre)).sin_cos();
+        let end = (i + 1024).min(n);
+        for j in i..end {
+            f(j, s, c);
+            let ns = s * cd + c * sd;
+            c = c * cd - s * sd;
+            s = ns;
+        }
+        i = end;
+    }
+}
+
 /// Result of a sine fit.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SineFit {
@@ -35,12 +54,11 @@ impl SineFit {
     /// Fill `out` with the residual `x − fit` (the noise and distortion, NAD, of IEEE 1241).
     pub fn residual_into(&self, x: &[f64], out: &mut Vec<f64>) {
         out.clear();
-        let len = x.len();
-        out.extend(
-            x.iter()
-                .enumerate()
-                .map(|(n, &v)| v - self.value_at(n, len)),
-        );
+        out.resize(x.len(), 0.0);
+        let centre = (x.len() as f64 - 1.0) / 2.0;
+        sweep(x.len(), self.omega, centre, |i, s, c| {
+            out[i] = x[i] - (self.a * c + self.b * s + self.c);
+        });
     }
 }
 
@@ -83,8 +101,8 @@ pub fn fit3(x: &[f64], omega: f64) -> Option<SineFit> {
     let centre = (n as f64 - 1.0) / 2.0;
     let mut m = [[0.0; 3]; 3];
     let mut r = [0.0; 3];
-    for (i, &y) in x.iter().enumerate() {
-        let (s, c) = (omega * (i as f64 - centre)).sin_cos();
+    sweep(n, omega, centre, |i, s, c| {
+        let y = x[i];
         let v = [c, s, 1.0];
         for j in 0..3 {
             r[j] += v[j] * y;
@@ -92,7 +110,7 @@ pub fn fit3(x: &[f64], omega: f64) -> Option<SineFit> {
                 m[j][k] += v[j] * v[k];
             }
         }
-    }
+    });
     for j in 0..3 {
         for k in 0..j {
             m[j][k] = m[k][j];
@@ -120,10 +138,11 @@ pub fn fit4(x: &[f64], omega0: f64, max_step: f64) -> Option<SineFit> {
     for it in 1..=16 {
         let mut m = [[0.0; 4]; 4];
         let mut r = [0.0; 4];
-        for (i, &y) in x.iter().enumerate() {
+        let (fa, fb) = (fit.a, fit.b);
+        sweep(n, fit.omega, centre, |i, s, c| {
+            let y = x[i];
             let t = i as f64 - centre;
-            let (s, c) = (fit.omega * t).sin_cos();
-            let d = t * scale * (fit.b * c - fit.a * s);
+            let d = t * scale * (fb * c - fa * s);
             let v = [c, s, 1.0, d];
             for j in 0..4 {
                 r[j] += v[j] * y;
@@ -131,7 +150,7 @@ pub fn fit4(x: &[f64], omega0: f64, max_step: f64) -> Option<SineFit> {
                     m[j][k] += v[j] * v[k];
                 }
             }
-        }
+        });
         for j in 0..4 {
             for k in 0..j {
                 m[j][k] = m[k][j];

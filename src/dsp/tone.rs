@@ -29,7 +29,7 @@ use realfft::num_complex::Complex;
 use realfft::{RealFftPlanner, RealToComplex};
 
 use super::sinefit::{fit4, SineFit};
-use super::window::Window;
+use super::window::{self, Window};
 
 /// How far one family of harmonics (odd or even orders) must stand below the other for the
 /// fall-off slope to follow the stronger family alone (dB).
@@ -117,8 +117,8 @@ pub struct ToneReport {
 pub struct ToneAnalyzer {
     planner: RealFftPlanner<f64>,
     plan: Option<(usize, Arc<dyn RealToComplex<f64>>)>,
-    win4: Vec<f64>,
-    win7: Vec<f64>,
+    win4: Arc<Vec<f64>>,
+    win7: Arc<Vec<f64>>,
     x: Vec<f64>,
     buf: Vec<f64>,
     spec: Vec<Complex<f64>>,
@@ -166,8 +166,8 @@ impl ToneAnalyzer {
         ToneAnalyzer {
             planner: RealFftPlanner::new(),
             plan: None,
-            win4: Vec::new(),
-            win7: Vec::new(),
+            win4: Arc::new(Vec::new()),
+            win7: Arc::new(Vec::new()),
             x: Vec::new(),
             buf: Vec::new(),
             spec: Vec::new(),
@@ -184,8 +184,8 @@ impl ToneAnalyzer {
             }
         }
         let plan = self.planner.plan_fft_forward(n);
-        self.win4 = Window::BlackmanHarris4.generate(n);
-        self.win7 = Window::BlackmanHarris7.generate(n);
+        self.win4 = window::shared(Window::BlackmanHarris4, n);
+        self.win7 = window::shared(Window::BlackmanHarris7, n);
         self.buf.resize(n, 0.0);
         self.spec = plan.make_output_vec();
         self.scratch = plan.make_scratch_vec();
@@ -198,7 +198,7 @@ impl ToneAnalyzer {
     /// that the sum over bins estimates mean power.
     fn power_spectrum(&mut self, plan: &Arc<dyn RealToComplex<f64>>, src: &[f64]) -> bool {
         let n = src.len();
-        for ((b, &v), &w) in self.buf.iter_mut().zip(src).zip(&self.win4) {
+        for ((b, &v), &w) in self.buf.iter_mut().zip(src).zip(self.win4.iter()) {
             *b = v * w;
         }
         if plan
@@ -332,16 +332,16 @@ impl ToneAnalyzer {
         // Harmonics: single-frequency DFT under the 7-term window.
         let max_freq = band_hi.min(nyquist - (lobe7 as f64 + 1.0) * df);
         let w7_sum: f64 = self.win7.iter().sum();
-        let (x1, _) = self.project(&fit, 1);
+        let orders: Vec<usize> = (1..=settings.max_order)
+            .take_while(|&k| k == 1 || f0 * k as f64 <= max_freq)
+            .collect();
+        let proj = self.project(&fit, &orders);
+        let x1 = proj[0];
         let a1 = 2.0 * x1.norm() / w7_sum;
         let theta1 = x1.arg() + PI / 2.0;
         let mut harmonics = Vec::new();
-        for k in 2..=settings.max_order {
+        for (&k, xk) in orders.iter().zip(&proj).skip(1) {
             let fk = f0 * k as f64;
-            if fk > max_freq {
-                break;
-            }
-            let (xk, _) = self.project(&fit, k);
             let ak = 2.0 * xk.norm() / w7_sum;
             let thetak = xk.arg() + PI / 2.0;
             harmonics.push(Harmonic {
@@ -439,23 +439,39 @@ impl ToneAnalyzer {
         })
     }
 
-    /// Windowed single-frequency DFT of the record at `k·ω`, time centred on the record.
-    fn project(&self, fit: &SineFit, k: usize) -> (Complex<f64>, f64) {
+    /// Windowed single-frequency DFTs of the record at `k·ω` for each order, time centred on the
+    /// record. Four orders share each pass over the data so their rotating phasors advance side by
+    /// side (the rotation is a dependency chain; four of them keep the core busy).
+    fn project(&self, fit: &SineFit, orders: &[usize]) -> Vec<Complex<f64>> {
+        const GROUP: usize = 4;
         let n = self.x.len();
         let centre = (n as f64 - 1.0) / 2.0;
-        let w = fit.omega * k as f64;
-        let step = Complex::from_polar(1.0, -w);
-        let mut acc = Complex::new(0.0, 0.0);
-        let mut z = Complex::new(0.0, 0.0);
-        for (i, (&x, &win)) in self.x.iter().zip(&self.win7).enumerate() {
-            // Re-anchor the rotating phasor exactly every 1024 samples to stop error build-up.
-            if i % 1024 == 0 {
-                z = Complex::from_polar(1.0, -w * (i as f64 - centre));
+        let mut out = Vec::with_capacity(orders.len());
+        for group in orders.chunks(GROUP) {
+            let mut w = [0.0f64; GROUP];
+            for (wk, &k) in w.iter_mut().zip(group) {
+                *wk = fit.omega * k as f64;
             }
-            acc += z * (x * win);
-            z *= step;
+            let step: [Complex<f64>; GROUP] =
+                std::array::from_fn(|g| Complex::from_polar(1.0, -w[g]));
+            let mut acc = [Complex::new(0.0, 0.0); GROUP];
+            let mut z = [Complex::new(0.0, 0.0); GROUP];
+            for (i, (&x, &win)) in self.x.iter().zip(self.win7.iter()).enumerate() {
+                // Re-anchor the phasors exactly every 1024 samples to stop error build-up.
+                if i % 1024 == 0 {
+                    for g in 0..GROUP {
+                        z[g] = Complex::from_polar(1.0, -w[g] * (i as f64 - centre));
+                    }
+                }
+                let xw = x * win;
+                for g in 0..GROUP {
+                    acc[g] += z[g] * xw;
+                    z[g] *= step[g];
+                }
+            }
+            out.extend_from_slice(&acc[..group.len()]);
         }
-        (acc, w)
+        out
     }
 }
 

@@ -6,7 +6,7 @@
 use std::f64::consts::PI;
 
 /// The windows brink knows. Each is a periodic cosine sum.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Window {
     /// Hann (Harris 1978).
     Hann,
@@ -53,12 +53,18 @@ impl Window {
         }
         let coeffs = self.coefficients();
         for (i, w) in out.iter_mut().enumerate() {
-            let x = 2.0 * PI * i as f64 / n as f64;
-            *w = coeffs
-                .iter()
-                .enumerate()
-                .map(|(k, a)| a * (k as f64 * x).cos())
-                .sum();
+            // cos(kx) from cos(x) by the Chebyshev recurrence T_(k+1) = 2c·T_k − T_(k−1):
+            // one cosine per sample instead of one per term.
+            let c = (2.0 * PI * i as f64 / n as f64).cos();
+            let (mut t_prev, mut t) = (1.0, c);
+            let mut acc = coeffs[0];
+            for &a in &coeffs[1..] {
+                acc += a * t;
+                let next = 2.0 * c * t - t_prev;
+                t_prev = t;
+                t = next;
+            }
+            *w = acc;
         }
     }
 
@@ -68,6 +74,28 @@ impl Window {
         self.fill(&mut w);
         w
     }
+}
+
+/// The window of length `n`, computed once per (window, length) for the whole process and
+/// shared: every channel's analyser asks for the same few lengths.
+pub fn shared(window: Window, n: usize) -> std::sync::Arc<Vec<f64>> {
+    use std::collections::HashMap;
+    use std::sync::{Arc, Mutex, OnceLock};
+    type Cache = Mutex<HashMap<(Window, usize), Arc<Vec<f64>>>>;
+    static CACHE: OnceLock<Cache> = OnceLock::new();
+    let cache = CACHE.get_or_init(|| Mutex::new(HashMap::new()));
+    let mut map = cache.lock().unwrap_or_else(|p| p.into_inner());
+    if let Some(w) = map.get(&(window, n)) {
+        return Arc::clone(w);
+    }
+    // Keep the cache small: lengths come from settings, but a long-running process could see
+    // many; forget them all past a handful.
+    if map.len() >= 16 {
+        map.clear();
+    }
+    let w = Arc::new(window.generate(n));
+    map.insert((window, n), Arc::clone(&w));
+    w
 }
 
 /// Coherent gain `Σw/N`.

@@ -17,7 +17,7 @@ use symphonia::core::codecs::{
 };
 use symphonia::core::errors::Error as SymError;
 use symphonia::core::formats::{FormatOptions, FormatReader};
-use symphonia::core::io::{MediaSource, MediaSourceStream};
+use symphonia::core::io::{MediaSource, MediaSourceStream, MediaSourceStreamOptions};
 use symphonia::core::sample::Sample;
 use symphonia::default::codecs::PcmDecoder;
 use symphonia::default::formats::WavReader;
@@ -309,7 +309,14 @@ impl WavSource {
             len: file_len,
             patches,
         };
-        let mss = MediaSourceStream::new(Box::new(source), Default::default());
+        // A 1 MiB read buffer (symphonia's default is 64 KiB) means far fewer read calls on long
+        // files; it must be a power of two.
+        let mss = MediaSourceStream::new(
+            Box::new(source),
+            MediaSourceStreamOptions {
+                buffer_len: 1 << 20,
+            },
+        );
         let reader = WavReader::try_new(mss, &FormatOptions::default()).map_err(|e| match e {
             SymError::IoError(e) => WavError::Read(e),
             other => WavError::Header(sym_message(&other)),

@@ -2,5 +2,6 @@
 #![allow(clippy::unwrap_used)] // tests state their expectations by unwrapping
 
 mod accuracy;
+mod cli;
 mod closed_form;
 mod util;

@@ -72,3 +72,61 @@ pub fn db(x: f64) -> f64 {
 pub fn lin(d: f64) -> f64 {
     10f64.powf(d / 20.0)
 }
+
+/// The `brink` binary under test.
+pub fn brink() -> assert_cmd::Command {
+    assert_cmd::Command::cargo_bin("brink").unwrap()
+}
+
+/// Bytes of a canonical 44-byte-header WAV (`fmt ` of 16 bytes), with the declared data length
+/// and format fields taken as given, so tests can also build broken files.
+pub fn wav_bytes(
+    format_tag: u16,
+    channels: u16,
+    rate: u32,
+    bits: u16,
+    declared: u32,
+    data: &[u8],
+) -> Vec<u8> {
+    let block = channels.wrapping_mul(bits / 8);
+    let mut v = Vec::new();
+    v.extend_from_slice(b"RIFF");
+    v.extend_from_slice(&(36 + data.len() as u32).to_le_bytes());
+    v.extend_from_slice(b"WAVEfmt ");
+    v.extend_from_slice(&16u32.to_le_bytes());
+    v.extend_from_slice(&format_tag.to_le_bytes());
+    v.extend_from_slice(&channels.to_le_bytes());
+    v.extend_from_slice(&rate.to_le_bytes());
+    v.extend_from_slice(&(rate.wrapping_mul(block as u32)).to_le_bytes());
+    v.extend_from_slice(&block.to_le_bytes());
+    v.extend_from_slice(&bits.to_le_bytes());
+    v.extend_from_slice(b"data");
+    v.extend_from_slice(&declared.to_le_bytes());
+    v.extend_from_slice(data);
+    v
+}
+
+/// A 64-bit float WAV (format tag 3) of interleaved frames.
+pub fn f64_wav(channels: u16, rate: u32, interleaved: &[f64]) -> Vec<u8> {
+    let data: Vec<u8> = interleaved.iter().flat_map(|v| v.to_le_bytes()).collect();
+    wav_bytes(3, channels, rate, 64, data.len() as u32, &data)
+}
+
+/// Write 24-bit integer WAV with hound.
+pub fn write_i24(path: &std::path::Path, rate: u32, channels: &[Vec<f64>]) {
+    let spec = hound::WavSpec {
+        channels: channels.len() as u16,
+        sample_rate: rate,
+        bits_per_sample: 24,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).unwrap();
+    let full = (1 << 23) as f64;
+    for i in 0..channels[0].len() {
+        for c in channels {
+            w.write_sample((c[i] * full).round().clamp(-full, full - 1.0) as i32)
+                .unwrap();
+        }
+    }
+    w.finalize().unwrap();
+}
