@@ -13,7 +13,7 @@ use brink::scan::{scan_file, ScanSettings};
 
 const RATE: u32 = 48_000;
 const SECONDS: u32 = 600;
-const RUNS: usize = 5;
+const RUNS: usize = 9;
 
 fn write_programme(path: &Path) -> Result<(), Box<dyn std::error::Error>> {
     let spec = hound::WavSpec {
@@ -75,17 +75,31 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let rss_before = peak_rss_kib();
 
     let settings = ScanSettings::default();
+    let sox_ok = Command::new("sox").arg("--version").output().is_ok();
+    // Runs alternate between brink and sox so that drifts in machine speed hit both alike.
     let mut times = Vec::new();
+    let mut sox_times = Vec::new();
     let mut report = None;
     for _ in 0..RUNS {
         let t0 = Instant::now();
         report = Some(scan_file(&path, &settings)?);
         times.push(t0.elapsed());
+        if sox_ok {
+            let t0 = Instant::now();
+            let out = Command::new("sox")
+                .arg(&path)
+                .args(["-n", "stats"])
+                .output()?;
+            sox_times.push(t0.elapsed());
+            if !out.status.success() {
+                return Err("sox stats failed".into());
+            }
+        }
     }
     let (best, median) = summarise(times);
     let rss_after = peak_rss_kib();
     println!(
-        "file: {SECONDS} s, 2 ch, 48 kHz, 24-bit ({:.1} MB)",
+        "file: {SECONDS} s, 2 ch, 48 kHz, 24-bit ({:.1} MB), {RUNS} runs each",
         bytes as f64 / 1e6
     );
     println!(
@@ -111,22 +125,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             );
         }
     }
-
-    let sox_ok = Command::new("sox").arg("--version").output().is_ok();
     if sox_ok {
-        let mut times = Vec::new();
-        for _ in 0..RUNS {
-            let t0 = Instant::now();
-            let out = Command::new("sox")
-                .arg(&path)
-                .args(["-n", "stats"])
-                .output()?;
-            times.push(t0.elapsed());
-            if !out.status.success() {
-                return Err("sox stats failed".into());
-            }
-        }
-        let (sbest, smedian) = summarise(times);
+        let (sbest, smedian) = summarise(sox_times);
         println!(
             "sox FILE -n stats (peak, RMS, DC, ... no true peak, no harmonics): best {:.3} s, median {:.3} s  => {:.0}x real time",
             sbest.as_secs_f64(),
@@ -134,8 +134,9 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             audio.as_secs_f64() / sbest.as_secs_f64()
         );
         println!(
-            "brink is {:.1}x faster than sox stats (median against median)",
-            smedian.as_secs_f64() / median.as_secs_f64()
+            "brink / sox time: best {:.2}, median {:.2} (below 1 = brink faster)",
+            best.as_secs_f64() / sbest.as_secs_f64(),
+            median.as_secs_f64() / smedian.as_secs_f64()
         );
     } else {
         println!("sox not installed: the comparison is skipped (apt-get install sox)");
