@@ -7,8 +7,10 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod config;
 pub mod dsp;
 pub mod gen;
+pub mod live;
 pub mod scan;
 pub mod sink;
 pub mod source;
@@ -66,18 +68,19 @@ where
 /// `brink scan`: each file is measured and reported on its own; a bad file is reported on
 /// `err` and the rest go on.
 pub fn run_scan<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 {
-    let settings = match args.settings() {
-        Ok(s) => s,
+    let plan = match args.plan() {
+        Ok(p) => p,
         Err(msg) => {
             let _ = writeln!(err, "brink scan: {msg}");
             return EXIT_USAGE;
         }
     };
+    let settings = plan.settings;
     let mut code = EXIT_OK;
     for path in &args.files {
         let written = match scan::scan_file(path, &settings) {
             Ok(report) => {
-                let r = if args.json {
+                let r = if plan.json {
                     sink::json::write_line(out, &report)
                 } else {
                     sink::text::write_scan(out, &report)

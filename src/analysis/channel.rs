@@ -8,6 +8,7 @@ use crate::dsp::level::{amplitude_db, rms_dbfs, LevelStats};
 use crate::dsp::tone::{ToneAnalyzer, ToneReport, ToneSettings};
 use crate::dsp::truepeak::TruePeak;
 
+use super::episode::{Episode, EpisodeTracker};
 use super::report::{
     ChannelReport, ClipEvent, ClipReport, DistortionReport, HarmonicReport, LevelReport,
     SidedLevels, SliceChannel,
@@ -43,16 +44,6 @@ const TP_BLOCK: usize = 4096;
 /// Most run levels kept per kind and side for the median clip level.
 const LEVELS_KEPT: usize = 65_536;
 
-#[derive(Debug, Clone, Default)]
-struct Episode {
-    kind: Option<ClipKind>,
-    start: u64,
-    end: u64,
-    level: f32,
-    runs: u64,
-    samples: u64,
-}
-
 /// Tally of clip runs for one channel.
 #[derive(Debug, Clone, Default)]
 struct ClipTally {
@@ -62,7 +53,7 @@ struct ClipTally {
     first: Option<u64>,
     /// Run levels: [over, flat-top] × [positive, negative].
     levels: [[Vec<f32>; 2]; 2],
-    episode: Episode,
+    episodes: EpisodeTracker,
     events: Vec<ClipEvent>,
     omitted: u64,
 }
@@ -95,40 +86,22 @@ impl ClipTally {
         if self.levels[k][side].len() < LEVELS_KEPT {
             self.levels[k][side].push(run.level.abs());
         }
-        let gap = (s.merge_gap_s * rate) as u64;
-        let ep = &mut self.episode;
-        if ep.kind == Some(run.kind) && run.start <= ep.end + gap {
-            ep.end = ep.end.max(run.start + run.len);
-            ep.level = ep.level.max(run.level.abs());
-            ep.runs += 1;
-            ep.samples += run.len;
+        if let Some(ep) = self.episodes.add(&run) {
+            self.keep(ep, rate, s);
+        }
+    }
+
+    fn keep(&mut self, ep: Episode, rate: f64, s: &ChannelSettings) {
+        if self.events.len() < s.max_events {
+            self.events.push(ep.to_event(rate));
         } else {
-            self.close_episode(rate, s);
-            self.episode = Episode {
-                kind: Some(run.kind),
-                start: run.start,
-                end: run.start + run.len,
-                level: run.level.abs(),
-                runs: 1,
-                samples: run.len,
-            };
+            self.omitted += 1;
         }
     }
 
     fn close_episode(&mut self, rate: f64, s: &ChannelSettings) {
-        let ep = std::mem::take(&mut self.episode);
-        let Some(kind) = ep.kind else { return };
-        if self.events.len() < s.max_events {
-            self.events.push(ClipEvent {
-                kind,
-                start_s: ep.start as f64 / rate,
-                end_s: ep.end as f64 / rate,
-                level_dbfs: amplitude_db(ep.level as f64),
-                runs: ep.runs,
-                samples: ep.samples,
-            });
-        } else {
-            self.omitted += 1;
+        if let Some(ep) = self.episodes.flush() {
+            self.keep(ep, rate, s);
         }
     }
 
@@ -195,6 +168,7 @@ impl ChannelAnalyzer {
         slice_len: Option<u64>,
     ) -> Self {
         let cap = (tone_span.end.saturating_sub(tone_span.start)).min(1 << 24) as usize;
+        let gap = (settings.merge_gap_s * rate as f64) as u64;
         ChannelAnalyzer {
             channel,
             rate,
@@ -203,7 +177,10 @@ impl ChannelAnalyzer {
             pos: 0,
             levels: LevelStats::default(),
             tp: TruePeak::new(rate),
-            tally: ClipTally::default(),
+            tally: ClipTally {
+                episodes: EpisodeTracker::new(gap),
+                ..ClipTally::default()
+            },
             tone_buf: Vec::with_capacity(cap),
             tone_span,
             tone_result: None,

@@ -405,3 +405,96 @@ fn levels_agree_with_sox_stats() {
         field("DC offset")
     );
 }
+
+/// Settings come from the built-in defaults, then the user file, then `--config`, then flags.
+#[test]
+fn configuration_layers_and_flags_override_files() {
+    let dir = tmp();
+    let f = dir.path().join("tone.wav");
+    brink()
+        .arg("gen")
+        .arg(&f)
+        .args(["square:1000@-6", "--length", "1s"])
+        .assert()
+        .success();
+    let xdg = dir.path().join("xdg");
+    std::fs::create_dir_all(xdg.join("brink")).unwrap();
+    std::fs::write(xdg.join("brink/config.toml"), "[measure]\nmax_order = 9\n").unwrap();
+    let preset = dir.path().join("bench.toml");
+    std::fs::write(&preset, "[scan]\njson = true\n[measure]\nmax_order = 5\n").unwrap();
+    let orders = |args: &[&str]| -> usize {
+        let out = brink()
+            .env("XDG_CONFIG_HOME", &xdg)
+            .arg("scan")
+            .args(args)
+            .arg(&f)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+        v["channels"][0]["distortion"]["harmonics"]
+            .as_array()
+            .unwrap()
+            .len()
+    };
+    // User file: H2..H9; preset on top: H2..H5 and JSON; a flag on top of both: H2..H7.
+    assert_eq!(orders(&["--json"]), 8);
+    assert_eq!(orders(&["--config", preset.to_str().unwrap()]), 4);
+    assert_eq!(
+        orders(&["--config", preset.to_str().unwrap(), "--max-order", "7"]),
+        6
+    );
+    // --text wins over a file asking for JSON.
+    let out = brink()
+        .env("XDG_CONFIG_HOME", &xdg)
+        .args(["scan", "--text", "--config"])
+        .arg(&preset)
+        .arg(&f)
+        .output()
+        .unwrap();
+    assert!(String::from_utf8(out.stdout)
+        .unwrap()
+        .contains("Distortion"));
+}
+
+#[test]
+fn a_bad_configuration_file_names_file_line_and_column() {
+    let dir = tmp();
+    let bad = dir.path().join("bad.toml");
+    std::fs::write(&bad, "[measure]\nmax_order = 9\nmax_ordr = 3\n").unwrap();
+    brink()
+        .env("XDG_CONFIG_HOME", dir.path())
+        .args(["scan", "--config"])
+        .arg(&bad)
+        .arg("x.wav")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("bad.toml:3:1"))
+        .stderr(predicates::str::contains("max_ordr"));
+}
+
+/// Every bundled preset is accepted by the real binary.
+#[test]
+fn bundled_presets_are_accepted() {
+    let dir = tmp();
+    let f = dir.path().join("a.wav");
+    brink()
+        .arg("gen")
+        .arg(&f)
+        .args(["sine:997@-20", "--length", "1s"])
+        .assert()
+        .success();
+    for preset in ["default", "soundcheck", "amp-bench", "lab-logger"] {
+        let path = format!("{}/config/{preset}.toml", env!("CARGO_MANIFEST_DIR"));
+        brink()
+            .env("XDG_CONFIG_HOME", dir.path())
+            .args(["scan", "--config", &path])
+            .arg(&f)
+            .assert()
+            .success();
+    }
+}

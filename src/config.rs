@@ -1,0 +1,951 @@
+//! Configuration files: TOML presets and the user's own defaults.
+//!
+//! Two steps, as with the command line: the file is first read into a private serde model of the
+//! TOML text (every table refuses unknown keys, every key is optional), then each value is checked
+//! and turned into the public [`ConfigFile`], whose fields are `None` where the file said nothing.
+//! Layers are joined with [`ConfigFile::merge`] (the upper layer wins key by key); the command line
+//! goes on top of the result.
+//!
+//! ```toml
+//! [scan]
+//! every = "1s"               # duration strings as on the command line: 500ms, 2s, 1.5s, 1m
+//! tone_span = "4s"
+//! merge_gap = "100ms"
+//! json = false
+//!
+//! [measure]                  # shared by every mode
+//! band_low_hz = 20.0
+//! band_high_hz = 20000.0
+//! max_order = 20
+//! fundamental_hz = 997.0     # absent = the strongest tone
+//! over_length = 3
+//! flat_tolerance = 0.001
+//! flat_min_level_dbfs = -40.0
+//! ```
+//!
+//! Files are looked for in this order by [`layered`]: the user's file ([`user_config_path`]) if it
+//! exists, then the file named with `--config` on top of it. `config/default.toml` in the source
+//! tree documents every key.
+
+use std::ffi::OsString;
+use std::fmt;
+use std::io;
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+use serde::de::{self, Deserializer, Visitor};
+use serde::Deserialize;
+
+use crate::gen::{parse_duration, GenError};
+
+/// Shortest `every` and `tone_span` accepted: below this a slice holds a handful of samples.
+const MIN_SPAN: Duration = Duration::from_millis(1);
+
+/// Longest duration accepted for any key (24 hours): anything longer is a typing slip.
+const MAX_DURATION: Duration = Duration::from_secs(24 * 3600);
+
+/// Allowed harmonic orders (the same range as `--max-order`).
+const MAX_ORDER_RANGE: std::ops::RangeInclusive<i64> = 2..=40;
+
+/// Allowed over lengths in samples (the same range as `--over-length`).
+const OVER_LENGTH_RANGE: std::ops::RangeInclusive<i64> = 1..=u16::MAX as i64;
+
+/// A whole configuration file, checked. `None` means the file does not set the key.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ConfigFile {
+    /// `[scan]`: options of `brink scan`.
+    pub scan: ScanSection,
+    /// `[measure]`: measurement settings shared by every mode.
+    pub measure: MeasureSection,
+}
+
+/// The `[scan]` table.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ScanSection {
+    /// `every`: length of the time-line slices (`--every`); absent = no time line.
+    pub every: Option<Duration>,
+    /// `tone_span`: span at the centre of each file used for distortion (`--tone-span`).
+    pub tone_span: Option<Duration>,
+    /// `merge_gap`: clipped runs of one kind closer than this join one episode (`--merge-gap`).
+    pub merge_gap: Option<Duration>,
+    /// `json`: one JSON object per file instead of text (`--json`).
+    pub json: Option<bool>,
+}
+
+/// The `[measure]` table.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct MeasureSection {
+    /// `band_low_hz`: lower edge of the THD+N band, Hz (`--band-low`).
+    pub band_low_hz: Option<f64>,
+    /// `band_high_hz`: upper edge of the band, Hz (`--band-high`).
+    pub band_high_hz: Option<f64>,
+    /// `max_order`: highest harmonic order reported, 2..=40 (`--max-order`).
+    pub max_order: Option<u16>,
+    /// `fundamental_hz`: measure this fundamental, Hz (`--fundamental`); absent = strongest tone.
+    pub fundamental_hz: Option<f64>,
+    /// `over_length`: shortest run of full-scale samples counted as an over (`--over-length`).
+    pub over_length: Option<u16>,
+    /// `flat_tolerance`: width of the band a flat top stays in, fraction of full scale
+    /// (`--flat-tolerance`).
+    pub flat_tolerance: Option<f64>,
+    /// `flat_min_level_dbfs`: lowest level a flat top may sit at, dBFS (`--flat-min-level`).
+    pub flat_min_level_dbfs: Option<f64>,
+}
+
+impl ConfigFile {
+    /// Join two layers: every key set in `over` wins, keys `over` leaves unset keep `self`'s value.
+    pub fn merge(self, over: ConfigFile) -> ConfigFile {
+        ConfigFile {
+            scan: ScanSection {
+                every: over.scan.every.or(self.scan.every),
+                tone_span: over.scan.tone_span.or(self.scan.tone_span),
+                merge_gap: over.scan.merge_gap.or(self.scan.merge_gap),
+                json: over.scan.json.or(self.scan.json),
+            },
+            measure: MeasureSection {
+                band_low_hz: over.measure.band_low_hz.or(self.measure.band_low_hz),
+                band_high_hz: over.measure.band_high_hz.or(self.measure.band_high_hz),
+                max_order: over.measure.max_order.or(self.measure.max_order),
+                fundamental_hz: over.measure.fundamental_hz.or(self.measure.fundamental_hz),
+                over_length: over.measure.over_length.or(self.measure.over_length),
+                flat_tolerance: over.measure.flat_tolerance.or(self.measure.flat_tolerance),
+                flat_min_level_dbfs: over
+                    .measure
+                    .flat_min_level_dbfs
+                    .or(self.measure.flat_min_level_dbfs),
+            },
+        }
+    }
+}
+
+/// The built-in defaults (those of `brink scan`) as a configuration: every key that has a default
+/// is `Some`. `every` and `fundamental_hz` have none (no time line; the strongest tone) and stay
+/// `None`.
+pub fn builtin_defaults() -> ConfigFile {
+    ConfigFile {
+        scan: ScanSection {
+            every: None,
+            tone_span: Some(Duration::from_secs(4)),
+            merge_gap: Some(Duration::from_millis(100)),
+            json: Some(false),
+        },
+        measure: MeasureSection {
+            band_low_hz: Some(20.0),
+            band_high_hz: Some(20_000.0),
+            max_order: Some(20),
+            fundamental_hz: None,
+            over_length: Some(3),
+            flat_tolerance: Some(0.001),
+            flat_min_level_dbfs: Some(-40.0),
+        },
+    }
+}
+
+/// A place in a file, 1-based; the column counts characters.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Position {
+    /// Line, from 1.
+    pub line: usize,
+    /// Column in characters, from 1.
+    pub column: usize,
+}
+
+/// `":line:column"` after a file name, or nothing when the place is unknown.
+struct At(Option<Position>);
+
+impl fmt::Display for At {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self.0 {
+            Some(p) => write!(f, ":{}:{}", p.line, p.column),
+            None => Ok(()),
+        }
+    }
+}
+
+/// Why a configuration file could not be used. Each renders as one line that starts with the
+/// file's name.
+#[derive(Debug, thiserror::Error)]
+pub enum ConfigError {
+    /// The file does not exist.
+    #[error("{}: no such configuration file", .path.display())]
+    NotFound {
+        /// The file named.
+        path: PathBuf,
+    },
+    /// The file exists but could not be read (permissions, a folder, not UTF-8...).
+    #[error("{}: cannot read configuration file: {source}", .path.display())]
+    Read {
+        /// The file named.
+        path: PathBuf,
+        /// What the system said.
+        source: io::Error,
+    },
+    /// Not TOML, or TOML with a key, table or type brink does not take.
+    #[error("{}{}: {message}", .path.display(), At(*.at))]
+    Parse {
+        /// The file.
+        path: PathBuf,
+        /// Where the problem starts, when the parser said.
+        at: Option<Position>,
+        /// What is wrong, one line.
+        message: String,
+    },
+    /// A key whose value is of the right type but not usable.
+    #[error("{}: [{section}] {key} = {value} {problem}", .path.display())]
+    Value {
+        /// The file.
+        path: PathBuf,
+        /// The table holding the key.
+        section: &'static str,
+        /// The key.
+        key: &'static str,
+        /// The value as written (strings quoted).
+        value: String,
+        /// What is wrong with it and what is allowed.
+        problem: String,
+    },
+}
+
+/// The TOML text as written. Private: only checked values leave this module.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFile {
+    #[serde(default)]
+    scan: RawScan,
+    #[serde(default)]
+    measure: RawMeasure,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawScan {
+    every: Option<Dur>,
+    tone_span: Option<Dur>,
+    merge_gap: Option<Dur>,
+    json: Option<bool>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawMeasure {
+    band_low_hz: Option<Num>,
+    band_high_hz: Option<Num>,
+    max_order: Option<Int>,
+    fundamental_hz: Option<Num>,
+    over_length: Option<Int>,
+    flat_tolerance: Option<Num>,
+    flat_min_level_dbfs: Option<Num>,
+}
+
+/// A number as written: integer or float (`20` and `20.0` both do).
+#[derive(Debug, Clone, Copy)]
+struct Num(f64);
+
+/// A whole number as written. Read as `i64` so that an out-of-range value gets the allowed range
+/// in the message rather than a type error.
+#[derive(Debug, Clone, Copy)]
+struct Int(i64);
+
+/// A duration string as written, parsed when checked (so that the message can name the key).
+#[derive(Debug, Clone)]
+struct Dur(String);
+
+impl<'de> Deserialize<'de> for Num {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl Visitor<'_> for V {
+            type Value = Num;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("a number, e.g. 20.0")
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<Num, E> {
+                Ok(Num(v))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<Num, E> {
+                Ok(Num(v as f64))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<Num, E> {
+                Ok(Num(v as f64))
+            }
+        }
+        d.deserialize_f64(V)
+    }
+}
+
+impl<'de> Deserialize<'de> for Int {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl Visitor<'_> for V {
+            type Value = Int;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("a whole number, e.g. 20")
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<Int, E> {
+                Ok(Int(v))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<Int, E> {
+                Ok(Int(i64::try_from(v).unwrap_or(i64::MAX)))
+            }
+        }
+        d.deserialize_i64(V)
+    }
+}
+
+impl<'de> Deserialize<'de> for Dur {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl Visitor<'_> for V {
+            type Value = Dur;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("a duration string with a unit, e.g. \"500ms\", \"2s\", \"1m\"")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Dur, E> {
+                Ok(Dur(v.to_string()))
+            }
+        }
+        d.deserialize_str(V)
+    }
+}
+
+/// Parse and check the text of a configuration file; `origin` names it in errors.
+pub fn parse(text: &str, origin: &Path) -> Result<ConfigFile, ConfigError> {
+    let raw: RawFile = toml::from_str(text).map_err(|e| ConfigError::Parse {
+        path: origin.to_path_buf(),
+        at: e.span().map(|s| position(text, s.start)),
+        message: one_line(e.message()),
+    })?;
+    Checker { path: origin }.check(raw)
+}
+
+/// Read, parse and check a configuration file. A file that does not exist is
+/// [`ConfigError::NotFound`].
+pub fn load(path: &Path) -> Result<ConfigFile, ConfigError> {
+    let text = std::fs::read_to_string(path).map_err(|e| match e.kind() {
+        io::ErrorKind::NotFound | io::ErrorKind::NotADirectory => ConfigError::NotFound {
+            path: path.to_path_buf(),
+        },
+        _ => ConfigError::Read {
+            path: path.to_path_buf(),
+            source: e,
+        },
+    })?;
+    parse(&text, path)
+}
+
+/// The user's configuration file: `$XDG_CONFIG_HOME/brink/config.toml`, else
+/// `$HOME/.config/brink/config.toml`; `None` when neither variable is usable. An empty or relative
+/// `XDG_CONFIG_HOME` is ignored, as the XDG base directory specification asks.
+pub fn user_config_path() -> Option<PathBuf> {
+    user_config_path_from(
+        std::env::var_os("XDG_CONFIG_HOME"),
+        std::env::var_os("HOME"),
+    )
+}
+
+fn user_config_path_from(xdg: Option<OsString>, home: Option<OsString>) -> Option<PathBuf> {
+    let base = match xdg.map(PathBuf::from) {
+        Some(x) if x.is_absolute() => x,
+        _ => PathBuf::from(home.filter(|h| !h.is_empty())?).join(".config"),
+    };
+    Some(base.join("brink").join("config.toml"))
+}
+
+/// The configuration in force before the command line: the user's file if it exists, then the
+/// `explicit` (`--config`) file on top. A missing user file is no error; a missing explicit file
+/// is [`ConfigError::NotFound`]. Keys neither file sets stay `None`.
+pub fn layered(explicit: Option<&Path>) -> Result<ConfigFile, ConfigError> {
+    layered_from(user_config_path().as_deref(), explicit)
+}
+
+fn layered_from(user: Option<&Path>, explicit: Option<&Path>) -> Result<ConfigFile, ConfigError> {
+    let mut cfg = ConfigFile::default();
+    if let Some(u) = user {
+        match load(u) {
+            Ok(c) => cfg = c,
+            Err(ConfigError::NotFound { .. }) => {}
+            Err(e) => return Err(e),
+        }
+    }
+    if let Some(p) = explicit {
+        cfg = cfg.merge(load(p)?);
+    }
+    Ok(cfg)
+}
+
+/// 1-based line and column (in characters) of byte `offset` in `text`.
+fn position(text: &str, offset: usize) -> Position {
+    let mut off = offset.min(text.len());
+    while !text.is_char_boundary(off) {
+        off -= 1;
+    }
+    let before = &text[..off];
+    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+    Position {
+        line: before.matches('\n').count() + 1,
+        column: before[line_start..].chars().count() + 1,
+    }
+}
+
+/// The parser's message on one line.
+fn one_line(msg: &str) -> String {
+    msg.split('\n')
+        .map(str::trim)
+        .filter(|l| !l.is_empty())
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
+/// Checks values of one file and names it in errors.
+struct Checker<'a> {
+    path: &'a Path,
+}
+
+impl Checker<'_> {
+    fn bad(
+        &self,
+        section: &'static str,
+        key: &'static str,
+        value: impl fmt::Display,
+        problem: impl Into<String>,
+    ) -> ConfigError {
+        ConfigError::Value {
+            path: self.path.to_path_buf(),
+            section,
+            key,
+            value: value.to_string(),
+            problem: problem.into(),
+        }
+    }
+
+    fn check(&self, raw: RawFile) -> Result<ConfigFile, ConfigError> {
+        let s = raw.scan;
+        let m = raw.measure;
+        let num = |n: Option<Num>| n.map(|Num(v)| v);
+        let (band_low_hz, band_high_hz) = (num(m.band_low_hz), num(m.band_high_hz));
+        let fundamental_hz = num(m.fundamental_hz);
+        let (flat_tolerance, flat_min_level_dbfs) =
+            (num(m.flat_tolerance), num(m.flat_min_level_dbfs));
+        let scan = ScanSection {
+            every: self.duration("every", s.every, MIN_SPAN)?,
+            tone_span: self.duration("tone_span", s.tone_span, MIN_SPAN)?,
+            merge_gap: self.duration("merge_gap", s.merge_gap, Duration::ZERO)?,
+            json: s.json,
+        };
+
+        const M: &str = "measure";
+        if let Some(v) = band_low_hz {
+            if !(v >= 0.0 && v.is_finite()) {
+                return Err(self.bad(M, "band_low_hz", fmt_f(v), "must be 0 Hz or above"));
+            }
+        }
+        if let Some(v) = band_high_hz {
+            if !(v > 0.0 && v.is_finite()) {
+                return Err(self.bad(M, "band_high_hz", fmt_f(v), "must be above 0 Hz"));
+            }
+            if let Some(low) = band_low_hz {
+                if v <= low {
+                    return Err(self.bad(
+                        M,
+                        "band_high_hz",
+                        fmt_f(v),
+                        format!("must be above band_low_hz = {}", fmt_f(low)),
+                    ));
+                }
+            }
+        }
+        if let Some(v) = fundamental_hz {
+            if !(v > 0.0 && v.is_finite()) {
+                return Err(self.bad(M, "fundamental_hz", fmt_f(v), "must be above 0 Hz"));
+            }
+        }
+        let max_order = self.int(M, "max_order", m.max_order, MAX_ORDER_RANGE)?;
+        let over_length = self.int(M, "over_length", m.over_length, OVER_LENGTH_RANGE)?;
+        if let Some(v) = flat_tolerance {
+            if !(v > 0.0 && v < 0.5) {
+                return Err(self.bad(
+                    M,
+                    "flat_tolerance",
+                    fmt_f(v),
+                    "must be above 0 and below 0.5 (fraction of full scale)",
+                ));
+            }
+        }
+        if let Some(v) = flat_min_level_dbfs {
+            if v.is_nan() || v >= 0.0 {
+                return Err(self.bad(
+                    M,
+                    "flat_min_level_dbfs",
+                    fmt_f(v),
+                    "must be below 0 dBFS (negative)",
+                ));
+            }
+        }
+        Ok(ConfigFile {
+            scan,
+            measure: MeasureSection {
+                band_low_hz,
+                band_high_hz,
+                max_order,
+                fundamental_hz,
+                over_length,
+                flat_tolerance,
+                flat_min_level_dbfs,
+            },
+        })
+    }
+
+    /// A `[scan]` duration string: parses as on the command line, at least `min`, at most
+    /// [`MAX_DURATION`].
+    fn duration(
+        &self,
+        key: &'static str,
+        text: Option<Dur>,
+        min: Duration,
+    ) -> Result<Option<Duration>, ConfigError> {
+        let Some(Dur(text)) = text else {
+            return Ok(None);
+        };
+        let quoted = format!("{text:?}");
+        let d = parse_duration(&text).map_err(|e| {
+            let why = match e {
+                GenError::BadDuration { reason, .. } => reason.to_string(),
+                other => other.to_string(),
+            };
+            self.bad("scan", key, &quoted, format!("is not a duration: {why}"))
+        })?;
+        if d < min {
+            return Err(self.bad(
+                "scan",
+                key,
+                &quoted,
+                format!("is too short: at least {}ms", min.as_millis()),
+            ));
+        }
+        if d > MAX_DURATION {
+            return Err(self.bad("scan", key, &quoted, "is too long: at most 24 hours"));
+        }
+        Ok(Some(d))
+    }
+
+    /// An integer key within `range`.
+    fn int(
+        &self,
+        section: &'static str,
+        key: &'static str,
+        v: Option<Int>,
+        range: std::ops::RangeInclusive<i64>,
+    ) -> Result<Option<u16>, ConfigError> {
+        let Some(Int(v)) = v else {
+            return Ok(None);
+        };
+        match u16::try_from(v) {
+            Ok(n) if range.contains(&v) => Ok(Some(n)),
+            _ => Err(self.bad(
+                section,
+                key,
+                v,
+                format!("is outside {}..={}", range.start(), range.end()),
+            )),
+        }
+    }
+}
+
+/// A float as TOML writes it (`20000.0`, `-40.0`, `nan`, `inf`).
+fn fmt_f(v: f64) -> String {
+    if v.is_nan() {
+        "nan".to_string()
+    } else if v.is_infinite() {
+        if v > 0.0 { "inf" } else { "-inf" }.to_string()
+    } else {
+        format!("{v:?}")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn presets_dir() -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("config")
+    }
+
+    fn preset(name: &str) -> ConfigFile {
+        let path = presets_dir().join(name);
+        load(&path).unwrap_or_else(|e| panic!("{e}"))
+    }
+
+    fn err(text: &str) -> String {
+        match parse(text, Path::new("config/x.toml")) {
+            Ok(c) => panic!("expected an error for {text:?}, got {c:?}"),
+            Err(e) => e.to_string(),
+        }
+    }
+
+    #[test]
+    fn every_preset_parses() {
+        let mut names = Vec::new();
+        for entry in std::fs::read_dir(presets_dir()).unwrap() {
+            let path = entry.unwrap().path();
+            if path.extension().and_then(|e| e.to_str()) == Some("toml") {
+                if let Err(e) = load(&path) {
+                    panic!("{e}");
+                }
+                names.push(path.file_name().unwrap().to_string_lossy().into_owned());
+            }
+        }
+        names.sort();
+        for want in [
+            "amp-bench.toml",
+            "default.toml",
+            "lab-logger.toml",
+            "soundcheck.toml",
+        ] {
+            assert!(
+                names.iter().any(|n| n == want),
+                "{want} missing from {names:?}"
+            );
+        }
+    }
+
+    #[test]
+    fn default_toml_is_the_builtin_defaults() {
+        let file = preset("default.toml");
+        let want = builtin_defaults();
+        assert_eq!(file.scan.every, want.scan.every, "every");
+        assert_eq!(file.scan.tone_span, want.scan.tone_span, "tone_span");
+        assert_eq!(file.scan.merge_gap, want.scan.merge_gap, "merge_gap");
+        assert_eq!(file.scan.json, want.scan.json, "json");
+        let (f, w) = (&file.measure, &want.measure);
+        assert_eq!(f.band_low_hz, w.band_low_hz, "band_low_hz");
+        assert_eq!(f.band_high_hz, w.band_high_hz, "band_high_hz");
+        assert_eq!(f.max_order, w.max_order, "max_order");
+        assert_eq!(f.fundamental_hz, w.fundamental_hz, "fundamental_hz");
+        assert_eq!(f.over_length, w.over_length, "over_length");
+        assert_eq!(f.flat_tolerance, w.flat_tolerance, "flat_tolerance");
+        assert_eq!(
+            f.flat_min_level_dbfs, w.flat_min_level_dbfs,
+            "flat_min_level_dbfs"
+        );
+        // And nothing the field list above forgot.
+        assert_eq!(file, want);
+    }
+
+    #[test]
+    fn builtin_defaults_match_the_scan_command_line() {
+        use clap::Parser;
+        // With no options and no files, a scan runs on exactly the engine's own defaults.
+        let cli = crate::cli::Cli::try_parse_from(["brink", "scan", "a.wav"]).unwrap();
+        let crate::cli::Command::Scan(a) = cli.command else {
+            panic!("not scan");
+        };
+        assert_eq!(a.as_config(), ConfigFile::default());
+        let plan = crate::cli::plan_from(&builtin_defaults()).unwrap();
+        assert_eq!(plan.settings, crate::scan::ScanSettings::default());
+        assert!(!plan.json);
+    }
+
+    #[test]
+    fn presets_say_what_they_are_for() {
+        let sc = preset("soundcheck.toml");
+        assert_eq!(sc.scan.every, Some(Duration::from_secs(1)));
+        let d = builtin_defaults();
+        assert!(
+            sc.scan.merge_gap < d.scan.merge_gap,
+            "soundcheck merges less"
+        );
+        assert!(sc.measure.flat_min_level_dbfs > d.measure.flat_min_level_dbfs);
+
+        let amp = preset("amp-bench.toml");
+        assert_eq!(amp.measure.max_order, Some(20));
+        assert_eq!(
+            amp.measure.fundamental_hz, None,
+            "997 Hz is left commented out"
+        );
+        assert!(
+            amp.scan.tone_span > d.scan.tone_span,
+            "steady tones: a longer span"
+        );
+
+        let log = preset("lab-logger.toml");
+        assert_eq!(log.scan.every, Some(Duration::from_secs(1)));
+        assert_eq!(log.scan.json, Some(true));
+    }
+
+    #[test]
+    fn merge_lets_the_upper_layer_win_key_by_key() {
+        let base = parse(
+            "[scan]\nevery = \"2s\"\njson = true\n[measure]\nmax_order = 10\nover_length = 5\n",
+            Path::new("base.toml"),
+        )
+        .unwrap();
+        let over = parse(
+            "[scan]\nevery = \"500ms\"\n[measure]\nmax_order = 30\nfundamental_hz = 997.0\n",
+            Path::new("over.toml"),
+        )
+        .unwrap();
+        let m = base.clone().merge(over.clone());
+        assert_eq!(m.scan.every, Some(Duration::from_millis(500)));
+        assert_eq!(m.scan.json, Some(true));
+        assert_eq!(m.scan.tone_span, None);
+        assert_eq!(m.measure.max_order, Some(30));
+        assert_eq!(m.measure.over_length, Some(5));
+        assert_eq!(m.measure.fundamental_hz, Some(997.0));
+        assert_eq!(m.measure.band_low_hz, None);
+        // The other way round the base's values win.
+        let r = over.merge(base);
+        assert_eq!(r.scan.every, Some(Duration::from_secs(2)));
+        assert_eq!(r.measure.max_order, Some(10));
+        assert_eq!(r.measure.fundamental_hz, Some(997.0));
+        // An empty layer changes nothing.
+        assert_eq!(
+            builtin_defaults().merge(ConfigFile::default()),
+            builtin_defaults()
+        );
+    }
+
+    #[test]
+    fn unknown_key_names_file_line_column_and_key() {
+        // The misspelt key on line 7, column 1.
+        let text =
+            "# soundcheck\n\n[scan]\nevery = \"1s\"\n\nmerge_gap = \"50ms\"\ntone_spam = \"4s\"\n";
+        let e = match parse(text, Path::new("config/soundcheck.toml")) {
+            Err(e) => e.to_string(),
+            Ok(c) => panic!("{c:?}"),
+        };
+        assert!(
+            e.starts_with("config/soundcheck.toml:7:1: unknown field `tone_spam`"),
+            "{e}"
+        );
+        assert!(e.contains("expected one of `every`, `tone_span`"), "{e}");
+        assert!(!e.contains('\n'), "one line: {e}");
+    }
+
+    #[test]
+    fn unknown_table_is_refused() {
+        let e = err("[scan]\njson = true\n\n[log]\nevery = \"1s\"\n");
+        assert!(e.starts_with("config/x.toml:4:"), "{e}");
+        assert!(e.contains("unknown field `log`"), "{e}");
+    }
+
+    #[test]
+    fn type_error_has_line_and_column() {
+        let e = err("[measure]\nband_low_hz = 20.0\nmax_order = \"20\"\n");
+        assert!(e.starts_with("config/x.toml:3:13: "), "{e}");
+        assert!(
+            e.ends_with("invalid type: string \"20\", expected a whole number, e.g. 20"),
+            "{e}"
+        );
+        let e = err("[measure]\nband_high_hz = \"20k\"\n");
+        assert!(e.starts_with("config/x.toml:2:16: "), "{e}");
+        assert!(e.contains("expected a number"), "{e}");
+        let e = err("[measure]\nmax_order = 20.0\n");
+        assert!(e.starts_with("config/x.toml:2:13: "), "{e}");
+        let e = err("[scan]\njson = 1\n");
+        assert!(e.starts_with("config/x.toml:2:8: "), "{e}");
+        let e = err("[scan]\nevery = 5\n");
+        assert!(e.starts_with("config/x.toml:2:9: "), "{e}");
+        assert!(e.contains("expected a duration string"), "{e}");
+    }
+
+    #[test]
+    fn syntax_error_has_line_and_column() {
+        let e = err("[scan]\njson = false\nevery = \n");
+        assert!(e.starts_with("config/x.toml:3:"), "{e}");
+        assert!(!e.contains('\n'), "one line: {e}");
+        let e = err("[measure\n");
+        assert!(e.starts_with("config/x.toml:1:"), "{e}");
+    }
+
+    #[test]
+    fn bad_values_name_key_and_value() {
+        assert_eq!(
+            err("[measure]\nmax_order = 90\n"),
+            "config/x.toml: [measure] max_order = 90 is outside 2..=40"
+        );
+        assert_eq!(
+            err("[measure]\nband_low_hz = 1000.0\nband_high_hz = 500.0\n"),
+            "config/x.toml: [measure] band_high_hz = 500.0 must be above band_low_hz = 1000.0"
+        );
+        let cases: &[(&str, &str)] = &[
+            ("[measure]\nmax_order = 1\n", "max_order = 1 "),
+            ("[measure]\nmax_order = -3\n", "max_order = -3 "),
+            ("[measure]\nover_length = 0\n", "over_length = 0 "),
+            ("[measure]\nover_length = 70000\n", "over_length = 70000 "),
+            ("[measure]\nband_low_hz = -1.0\n", "band_low_hz = -1.0 "),
+            ("[measure]\nband_high_hz = inf\n", "band_high_hz = inf "),
+            ("[measure]\nfundamental_hz = 0.0\n", "fundamental_hz = 0.0 "),
+            ("[measure]\nfundamental_hz = nan\n", "fundamental_hz = nan "),
+            ("[measure]\nflat_tolerance = 0.5\n", "flat_tolerance = 0.5 "),
+            ("[measure]\nflat_tolerance = 0.0\n", "flat_tolerance = 0.0 "),
+            (
+                "[measure]\nflat_min_level_dbfs = 0.0\n",
+                "flat_min_level_dbfs = 0.0 ",
+            ),
+            (
+                "[measure]\nflat_min_level_dbfs = nan\n",
+                "flat_min_level_dbfs = nan ",
+            ),
+            (
+                "[scan]\nevery = \"0s\"\n",
+                "[scan] every = \"0s\" is not a duration",
+            ),
+            (
+                "[scan]\nevery = \"1.5\"\n",
+                "every = \"1.5\" is not a duration",
+            ),
+            (
+                "[scan]\ntone_span = \"2h\"\n",
+                "tone_span = \"2h\" is not a duration",
+            ),
+            (
+                "[scan]\ntone_span = \"0.5ms\"\n",
+                "tone_span = \"0.5ms\" is too short",
+            ),
+            (
+                "[scan]\nmerge_gap = \"-5ms\"\n",
+                "merge_gap = \"-5ms\" is not a duration",
+            ),
+            (
+                "[scan]\nmerge_gap = \"1441m\"\n",
+                "merge_gap = \"1441m\" is too long",
+            ),
+        ];
+        for (text, want) in cases {
+            let e = err(text);
+            assert!(e.starts_with("config/x.toml: ["), "{e}");
+            assert!(e.contains(want), "{text:?}: {e} lacks {want}");
+        }
+        // The band pair is checked only when both edges are in the same file; the edge alone is
+        // fine here (the merged result is checked with the command line).
+        assert!(parse("[measure]\nband_high_hz = 20.0\n", Path::new("x")).is_ok());
+        assert!(parse("[measure]\nband_high_hz = 0.0\n", Path::new("x")).is_err());
+        assert!(parse("[measure]\nband_low_hz = 30000.0\n", Path::new("x")).is_ok());
+    }
+
+    #[test]
+    fn accepted_values_come_through() {
+        let c = parse(
+            "[scan]\nevery = \"1.5s\"\ntone_span = \"1m\"\nmerge_gap = \"0.5ms\"\njson = true\n\
+             [measure]\nband_low_hz = 10\nband_high_hz = 96000\nmax_order = 40\n\
+             fundamental_hz = 997.0\nover_length = 1\nflat_tolerance = 0.01\n\
+             flat_min_level_dbfs = -20\n",
+            Path::new("x.toml"),
+        )
+        .unwrap();
+        assert_eq!(c.scan.every, Some(Duration::from_millis(1500)));
+        assert_eq!(c.scan.tone_span, Some(Duration::from_secs(60)));
+        assert_eq!(c.scan.merge_gap, Some(Duration::from_micros(500)));
+        assert_eq!(c.scan.json, Some(true));
+        assert_eq!(c.measure.band_low_hz, Some(10.0));
+        assert_eq!(c.measure.band_high_hz, Some(96_000.0));
+        assert_eq!(c.measure.max_order, Some(40));
+        assert_eq!(c.measure.fundamental_hz, Some(997.0));
+        assert_eq!(c.measure.over_length, Some(1));
+        assert_eq!(c.measure.flat_tolerance, Some(0.01));
+        assert_eq!(c.measure.flat_min_level_dbfs, Some(-20.0));
+        assert_eq!(parse("", Path::new("x")).unwrap(), ConfigFile::default());
+        assert_eq!(
+            parse("# nothing\n[scan]\n[measure]\n", Path::new("x")).unwrap(),
+            ConfigFile::default()
+        );
+    }
+
+    #[test]
+    fn positions_count_lines_and_characters() {
+        let t = "ab\r\nçé = 1\n\nx";
+        assert_eq!(position(t, 0), Position { line: 1, column: 1 });
+        assert_eq!(position(t, 4), Position { line: 2, column: 1 });
+        // After "çé" (four bytes): column 3.
+        assert_eq!(position(t, 8), Position { line: 2, column: 3 });
+        // Inside a character: its start.
+        assert_eq!(position(t, 5), Position { line: 2, column: 1 });
+        assert_eq!(position(t, t.len() + 10), Position { line: 4, column: 2 });
+    }
+
+    #[test]
+    fn user_path_falls_back_to_home() {
+        let p = |x: Option<&str>, h: Option<&str>| {
+            user_config_path_from(x.map(OsString::from), h.map(OsString::from))
+        };
+        assert_eq!(
+            p(Some("/xdg"), Some("/home/u")),
+            Some(PathBuf::from("/xdg/brink/config.toml"))
+        );
+        assert_eq!(
+            p(None, Some("/home/u")),
+            Some(PathBuf::from("/home/u/.config/brink/config.toml"))
+        );
+        assert_eq!(
+            p(Some(""), Some("/home/u")),
+            Some(PathBuf::from("/home/u/.config/brink/config.toml"))
+        );
+        assert_eq!(
+            p(Some("rel/dir"), Some("/home/u")),
+            Some(PathBuf::from("/home/u/.config/brink/config.toml"))
+        );
+        assert_eq!(p(None, None), None);
+        assert_eq!(p(None, Some("")), None);
+    }
+
+    /// The only test that touches the environment (tests run in parallel).
+    #[test]
+    fn user_path_honours_xdg_config_home_and_layers() {
+        let dir = tempfile::tempdir().unwrap();
+        let saved = std::env::var_os("XDG_CONFIG_HOME");
+        std::env::set_var("XDG_CONFIG_HOME", dir.path());
+        let path = user_config_path();
+        let no_user_file = layered(None);
+        std::fs::create_dir_all(dir.path().join("brink")).unwrap();
+        std::fs::write(
+            dir.path().join("brink/config.toml"),
+            "[scan]\nevery = \"2s\"\njson = true\n",
+        )
+        .unwrap();
+        let explicit = dir.path().join("over.toml");
+        std::fs::write(&explicit, "[scan]\nevery = \"250ms\"\n").unwrap();
+        let user_only = layered(None);
+        let both = layered(Some(&explicit));
+        match saved {
+            Some(v) => std::env::set_var("XDG_CONFIG_HOME", v),
+            None => std::env::remove_var("XDG_CONFIG_HOME"),
+        }
+        assert_eq!(path, Some(dir.path().join("brink").join("config.toml")));
+        assert_eq!(no_user_file.unwrap(), ConfigFile::default());
+        let user_only = user_only.unwrap();
+        assert_eq!(user_only.scan.every, Some(Duration::from_secs(2)));
+        assert_eq!(user_only.scan.json, Some(true));
+        let both = both.unwrap();
+        assert_eq!(both.scan.every, Some(Duration::from_millis(250)));
+        assert_eq!(both.scan.json, Some(true));
+    }
+
+    #[test]
+    fn layered_with_missing_explicit_file_names_it() {
+        let missing = Path::new("/nonexistent/brink-test/nope.toml");
+        match layered(Some(missing)) {
+            Err(e @ ConfigError::NotFound { .. }) => {
+                assert_eq!(
+                    e.to_string(),
+                    "/nonexistent/brink-test/nope.toml: no such configuration file"
+                );
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn layered_user_file_missing_is_fine_broken_is_not() {
+        let dir = tempfile::tempdir().unwrap();
+        let user = dir.path().join("config.toml");
+        assert_eq!(
+            layered_from(Some(&user), None).unwrap(),
+            ConfigFile::default()
+        );
+        std::fs::write(&user, "[scan]\nevry = \"1s\"\n").unwrap();
+        let e = layered_from(Some(&user), None).unwrap_err().to_string();
+        assert!(e.contains(":2:1: unknown field `evry`"), "{e}");
+        // A folder where the file should be is an error, not "missing".
+        let e = load(dir.path()).unwrap_err();
+        assert!(matches!(e, ConfigError::Read { .. }), "{e:?}");
+    }
+}

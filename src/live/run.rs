@@ -1,0 +1,164 @@
+//! The running pipeline: a source thread writing into the ring, the analysis thread cutting
+//! blocks from it, and a bounded channel carrying what the analysis found to whoever shows or
+//! writes it. Sending uses `try_send`: a slow reader never stalls analysis; what it misses is
+//! counted.
+
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
+use std::thread::JoinHandle;
+use std::time::Duration;
+
+use crossbeam_channel::{Receiver, Sender, TrySendError};
+
+use super::engine::{Engine, LiveEvent};
+use super::ring::{AnalysisReader, Read};
+
+/// Totals when the analysis thread ends.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Totals {
+    /// Frames the source offered.
+    pub delivered: u64,
+    /// Frames analysed.
+    pub analysed: u64,
+    /// Frames lost in the ring.
+    pub dropped_frames: u64,
+    /// Host xruns.
+    pub xruns: u64,
+    /// Events the receiver missed because its channel was full.
+    pub dropped_events: u64,
+}
+
+/// What the analysis thread publishes.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Published {
+    /// A finding.
+    Event(LiveEvent),
+    /// The input has ended (source finished or stop requested); nothing follows.
+    End(Totals),
+}
+
+/// Handle on a running analysis thread.
+#[derive(Debug)]
+pub struct Analysis {
+    /// Findings, in order.
+    pub events: Receiver<Published>,
+    stop: Arc<AtomicBool>,
+    handle: Option<JoinHandle<Totals>>,
+    dropped_events: Arc<AtomicU64>,
+}
+
+impl Analysis {
+    /// Ask the analysis thread to finish (it drains nothing further and reports its totals).
+    pub fn stop(&self) {
+        self.stop.store(true, Ordering::Relaxed);
+    }
+
+    /// Events missed so far because the receiver was slow.
+    pub fn dropped_events(&self) -> u64 {
+        self.dropped_events.load(Ordering::Relaxed)
+    }
+
+    /// Wait for the thread and return its totals.
+    pub fn join(mut self) -> Totals {
+        self.stop();
+        self.handle
+            .take()
+            .and_then(|h| h.join().ok())
+            .unwrap_or_default()
+    }
+}
+
+/// Start the analysis thread. `source_done` tells it the source has finished, so that once the
+/// ring is empty it can end; `capacity` bounds the event channel.
+pub fn spawn_analysis(
+    mut reader: AnalysisReader,
+    mut engine: Engine,
+    source_done: Arc<AtomicBool>,
+    capacity: usize,
+) -> std::io::Result<Analysis> {
+    let (tx, rx) = crossbeam_channel::bounded(capacity.max(1));
+    let stop = Arc::new(AtomicBool::new(false));
+    let dropped_events = Arc::new(AtomicU64::new(0));
+    let (stop2, dropped2) = (Arc::clone(&stop), Arc::clone(&dropped_events));
+    let handle = std::thread::Builder::new()
+        .name("brink-analysis".into())
+        .spawn(move || {
+            analysis_loop(
+                &mut reader,
+                &mut engine,
+                &source_done,
+                &stop2,
+                &tx,
+                &dropped2,
+            )
+        })?;
+    Ok(Analysis {
+        events: rx,
+        stop,
+        handle: Some(handle),
+        dropped_events,
+    })
+}
+
+fn publish(tx: &Sender<Published>, dropped: &AtomicU64, p: Published) {
+    match tx.try_send(p) {
+        Ok(()) | Err(TrySendError::Disconnected(_)) => {}
+        Err(TrySendError::Full(_)) => {
+            dropped.fetch_add(1, Ordering::Relaxed);
+        }
+    }
+}
+
+fn analysis_loop(
+    reader: &mut AnalysisReader,
+    engine: &mut Engine,
+    source_done: &AtomicBool,
+    stop: &AtomicBool,
+    tx: &Sender<Published>,
+    dropped_events: &AtomicU64,
+) -> Totals {
+    // Blocks of 10 ms, cut from the ring whatever the source's write sizes.
+    let block = ((engine.rate() as usize) / 100).max(1);
+    let ch = engine.channels();
+    let mut buf = vec![0.0f32; block * ch];
+    let mut emit = |ev: LiveEvent| publish(tx, dropped_events, Published::Event(ev));
+    loop {
+        if stop.load(Ordering::Relaxed) {
+            break;
+        }
+        match reader.read_block(&mut buf) {
+            Read::Frames(n) => engine.process(&buf[..n * ch], &mut emit),
+            Read::Gap { dropped } => engine.gap(dropped, &mut emit),
+            Read::Waiting => {
+                if source_done.load(Ordering::Acquire) {
+                    // Take what is left (less than a block), then end.
+                    let left = reader.available();
+                    if left > 0 {
+                        if let Read::Frames(n) = reader.read_block(&mut buf[..left * ch]) {
+                            engine.process(&buf[..n * ch], &mut emit);
+                        }
+                        continue;
+                    }
+                    // A loss right at the end still counts.
+                    if let Read::Gap { dropped } = reader.read_block(&mut buf[..0]) {
+                        engine.gap(dropped, &mut emit);
+                    }
+                    break;
+                }
+                std::thread::sleep(Duration::from_millis(2));
+            }
+        }
+    }
+    engine.finish(&mut emit);
+    let c = reader.counters();
+    let totals = Totals {
+        delivered: c.delivered.load(Ordering::Acquire),
+        analysed: reader.frames_read(),
+        dropped_frames: c.dropped.load(Ordering::Acquire),
+        xruns: c.xruns.load(Ordering::Relaxed),
+        dropped_events: dropped_events.load(Ordering::Relaxed),
+    };
+    // The end marker must arrive: wait for room rather than drop it.
+    let _ = tx.send_timeout(Published::End(totals), Duration::from_secs(5));
+    totals
+}
