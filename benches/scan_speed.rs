@@ -121,7 +121,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                 c.clipping.flat_tops,
                 c.distortion
                     .as_ref()
-                    .map(|d| (d.thd_pct * 1e3).round() / 1e3)
+                    .and_then(|d| d.thd_pct)
+                    .map(|t| (t * 1e3).round() / 1e3)
             );
         }
     }

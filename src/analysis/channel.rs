@@ -283,7 +283,7 @@ impl ChannelAnalyzer {
             fundamental_dbfs: tone
                 .as_ref()
                 .and_then(|t| amplitude_db(t.fundamental_amplitude)),
-            thd_pct: tone.as_ref().map(|t| 100.0 * t.thd_ratio),
+            thd_pct: tone.as_ref().and_then(|t| t.thd_ratio).map(|t| 100.0 * t),
             thd_n_db: tone.as_ref().and_then(|t| amplitude_db(t.thd_n_ratio)),
         });
         sl.levels = LevelStats::default();
@@ -346,8 +346,8 @@ pub fn distortion_report(t: &ToneReport, span_start_s: f64, rate: f64) -> Distor
     DistortionReport {
         fundamental_hz: t.fundamental_hz,
         fundamental_dbfs: amplitude_db(t.fundamental_amplitude),
-        thd_pct: 100.0 * t.thd_ratio,
-        thd_db: amplitude_db(t.thd_ratio),
+        thd_pct: t.thd_ratio.map(|r| 100.0 * r),
+        thd_db: t.thd_ratio.and_then(amplitude_db),
         thd_n_db: amplitude_db(t.thd_n_ratio),
         thd_n_pct: 100.0 * t.thd_n_ratio,
         sinad_db: t.sinad_db.is_finite().then_some(t.sinad_db),

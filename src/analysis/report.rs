@@ -117,8 +117,9 @@ pub struct DistortionReport {
     pub fundamental_hz: f64,
     /// Fundamental level: peak amplitude in dBFS (AES17: equals its RMS dBFS).
     pub fundamental_dbfs: Option<f64>,
-    /// THD_F: √ΣH²/H1 over H2..H20 within the band (%).
-    pub thd_pct: f64,
+    /// THD_F: √ΣH²/H1 over H2..H20 within the band (%); `None` when no harmonic lies within
+    /// the band.
+    pub thd_pct: Option<f64>,
     /// The same in dB.
     pub thd_db: Option<f64>,
     /// THD+N (AES17): all but the fundamental within the band, relative to the total (dB).

@@ -92,8 +92,8 @@ pub struct ToneReport {
     pub fundamental_hz: f64,
     /// Fundamental peak amplitude (full scale = 1).
     pub fundamental_amplitude: f64,
-    /// THD_F as a ratio.
-    pub thd_ratio: f64,
+    /// THD_F as a ratio; `None` when no harmonic lies within the band (nothing to measure).
+    pub thd_ratio: Option<f64>,
     /// THD+N as an RMS ratio (AES17, within the band).
     pub thd_n_ratio: f64,
     /// SINAD (dB), IEEE 1241.
@@ -395,7 +395,7 @@ impl ToneAnalyzer {
         let all = sum_sq(&|_| true);
         let even = sum_sq(&|k| k % 2 == 0);
         let odd = sum_sq(&|k| k % 2 == 1);
-        let thd_ratio = all.sqrt() / a1;
+        let thd_ratio = (!harmonics.is_empty()).then(|| all.sqrt() / a1);
         // With no harmonic above the floor there is no distortion to characterise.
         let any_resolved = harmonics.iter().any(|h| h.resolved);
         let odd_even_db =

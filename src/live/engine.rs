@@ -332,8 +332,10 @@ impl Engine {
             let report = lane
                 .tone
                 .analyze(&lane.scratch, rate, &self.settings.channel.tone);
-            if let Some(r) = &report {
-                let thd = 100.0 * r.thd_ratio;
+            if let Some((r, thd)) = report
+                .as_ref()
+                .and_then(|r| r.thd_ratio.map(|t| (r, 100.0 * t)))
+            {
                 let level = amplitude_db(r.fundamental_amplitude);
                 if !lane.onset_seen && thd >= threshold {
                     lane.onset_seen = true;
@@ -381,7 +383,7 @@ impl Engine {
                     fundamental_dbfs: tone
                         .as_ref()
                         .and_then(|t| amplitude_db(t.fundamental_amplitude)),
-                    thd_pct: tone.as_ref().map(|t| 100.0 * t.thd_ratio),
+                    thd_pct: tone.as_ref().and_then(|t| t.thd_ratio).map(|t| 100.0 * t),
                     thd_n_db: tone.as_ref().and_then(|t| amplitude_db(t.thd_n_ratio)),
                     odd_even_db: tone.as_ref().and_then(|t| t.odd_even_db),
                     harmonics_dbc: tone

@@ -48,15 +48,21 @@ impl FileSource {
     }
 
     /// Play on a new thread into `writer` until the end (or forever when looping) or until
-    /// `stop` is set. The thread's result is the first read error, if any.
+    /// `stop` is set; `done` is raised when the thread finishes, however it finishes. The
+    /// thread's result is the first read error, if any.
     pub fn spawn(
         self,
         mut writer: CaptureWriter,
         stop: Arc<AtomicBool>,
+        done: Arc<AtomicBool>,
     ) -> std::io::Result<JoinHandle<Result<(), WavError>>> {
         std::thread::Builder::new()
             .name("brink-file-source".into())
-            .spawn(move || self.play(&mut writer, &stop))
+            .spawn(move || {
+                let result = self.play(&mut writer, &stop);
+                done.store(true, Ordering::Release);
+                result
+            })
     }
 
     fn play(&self, writer: &mut CaptureWriter, stop: &AtomicBool) -> Result<(), WavError> {

@@ -54,7 +54,14 @@ pub fn write_scan<W: Write>(w: &mut W, r: &ScanReport) -> io::Result<()> {
             opt(l.true_peak_dbtp, 2, true),
             opt(l.rms_dbfs, 2, false),
             opt(l.crest_db, 2, false),
-            format!("{:+.5}", l.dc_offset),
+            format!(
+                "{:+.5}",
+                if l.dc_offset.abs() < 5e-6 {
+                    0.0
+                } else {
+                    l.dc_offset
+                }
+            ),
             opt(l.headroom_db, 2, false),
             k.overs,
             k.flat_tops,
@@ -143,11 +150,11 @@ pub fn write_scan<W: Write>(w: &mut W, r: &ScanReport) -> io::Result<()> {
             let Some(d) = &c.distortion else { continue };
             writeln!(
                 w,
-                "{:>4} {:>13.4} {:>7} {:>9.4} {:>7} {:>9} {:>9} {:>6} {:>12} {:>16}",
+                "{:>4} {:>13.4} {:>7} {:>9} {:>7} {:>9} {:>9} {:>6} {:>12} {:>16}",
                 c.channel,
                 d.fundamental_hz,
                 opt(d.fundamental_dbfs, 2, false),
-                d.thd_pct,
+                opt(d.thd_pct, 4, false),
                 opt(d.thd_db, 1, false),
                 opt(d.thd_n_db, 1, false),
                 opt(d.sinad_db, 1, false),

@@ -91,9 +91,9 @@ fn harmonic_levels_within_a_tenth_of_a_db_down_to_minus_90_dbc() {
             .sum::<f64>()
             .sqrt();
         assert!(
-            (d.thd_pct / 100.0 / want - 1.0).abs() < 0.005,
+            (d.thd_pct.unwrap() / 100.0 / want - 1.0).abs() < 0.005,
             "{label} THD {}",
-            d.thd_pct
+            d.thd_pct.unwrap()
         );
     }
 }
@@ -322,4 +322,17 @@ fn a_given_fundamental_is_measured() {
     };
     let r = analyze(&x, rate, s);
     assert!((dist(&r).fundamental_hz - 3_000.0).abs() < 0.01);
+}
+
+/// A tone whose harmonics all lie above the band has no measurable THD: `null`, not 0 or −0.
+#[test]
+fn thd_is_null_when_no_harmonic_lies_in_the_band() {
+    let rate = 96_000;
+    let x = to_f32(&tones(rate, rate as usize, &[(12_000.0, 0.5, 0.0)]));
+    let r = analyze(&x, rate, ChannelSettings::default());
+    let d = dist(&r);
+    assert!(d.harmonics.is_empty());
+    assert_eq!(d.thd_pct, None);
+    assert_eq!(d.thd_db, None);
+    assert!((d.fundamental_hz - 12_000.0).abs() < 0.01);
 }

@@ -4,4 +4,5 @@
 mod accuracy;
 mod cli;
 mod closed_form;
+mod demo;
 mod util;
