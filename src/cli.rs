@@ -58,6 +58,9 @@ pub enum Command {
     /// Write test signals to a WAV file, one recipe per channel.
     #[command(after_help = crate::gen::RECIPE_HELP)]
     Gen(crate::gen::GenArgs),
+    /// Measure live, headless: summaries every interval and clip events as they happen,
+    /// as NDJSON or CSV lines (to standard output or a rotating file).
+    Log(crate::logcmd::LogArgs),
 }
 
 /// Arguments of `brink scan`. Options left out take their value from the configuration files

@@ -10,6 +10,7 @@ pub mod cli;
 pub mod config;
 pub mod dsp;
 pub mod gen;
+pub mod logcmd;
 pub mod live;
 pub mod scan;
 pub mod sink;
@@ -48,6 +49,11 @@ where
     let mut err = io::stderr();
     let code = match cli.command {
         Command::Scan(args) => run_scan(&args, &mut out, &mut err),
+        Command::Log(args) => {
+            // Records go straight to their target, each flushed as written.
+            drop(out);
+            return ExitCode::from(logcmd::run_log(&args, &mut err));
+        }
         Command::Gen(args) => match gen::run(&args, &mut out) {
             Ok(()) => EXIT_OK,
             Err(e) => {

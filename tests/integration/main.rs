@@ -5,4 +5,5 @@ mod accuracy;
 mod cli;
 mod closed_form;
 mod demo;
+mod live;
 mod util;
