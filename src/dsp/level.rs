@@ -83,10 +83,16 @@ impl LevelStats {
 
     /// Mean (DC offset, full scale = 1).
     pub fn mean(&self) -> f64 {
-        if self.count == 0 {
+        let m = if self.count == 0 {
             0.0
         } else {
             self.sum / self.count as f64
+        };
+        // No negative zero in reports.
+        if m == 0.0 {
+            0.0
+        } else {
+            m
         }
     }
 
