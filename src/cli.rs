@@ -61,6 +61,19 @@ pub enum Command {
     /// Measure live, headless: summaries every interval and clip events as they happen,
     /// as NDJSON or CSV lines (to standard output or a rotating file).
     Log(crate::logcmd::LogArgs),
+    /// List the audio hosts and devices this machine offers.
+    Devices(DevicesArgs),
+}
+
+/// Arguments of `brink devices`.
+#[derive(Debug, Args)]
+pub struct DevicesArgs {
+    /// Only this host (e.g. alsa, jack).
+    #[arg(long)]
+    pub host: Option<String>,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Arguments of `brink scan`. Options left out take their value from the configuration files

@@ -54,6 +54,7 @@ where
             drop(out);
             return ExitCode::from(logcmd::run_log(&args, &mut err));
         }
+        Command::Devices(args) => run_devices(&args, &mut out, &mut err),
         Command::Gen(args) => match gen::run(&args, &mut out) {
             Ok(()) => EXIT_OK,
             Err(e) => {
@@ -68,6 +69,33 @@ where
             ExitCode::from(EXIT_FILE_ERROR)
         }
         _ => ExitCode::from(code),
+    }
+}
+
+/// `brink devices`: every host (or one) with its devices, as a table or JSON.
+pub fn run_devices<W: Write, E: Write>(args: &cli::DevicesArgs, out: &mut W, err: &mut E) -> u8 {
+    let hosts = match &args.host {
+        Some(name) => match live::devices::find_host(Some(name)) {
+            Ok(h) => vec![live::devices::report_host(&h, false)],
+            Err(e) => {
+                let _ = writeln!(err, "brink devices: {e}");
+                return EXIT_USAGE;
+            }
+        },
+        None => live::devices::list(),
+    };
+    let written = if args.json {
+        sink::json::write_line(out, &hosts)
+    } else {
+        live::devices::write_table(&mut *out, &hosts)
+    };
+    match written {
+        Ok(()) => EXIT_OK,
+        Err(e) if e.kind() == io::ErrorKind::BrokenPipe => EXIT_OK,
+        Err(e) => {
+            let _ = writeln!(err, "brink devices: cannot write output: {e}");
+            EXIT_FILE_ERROR
+        }
     }
 }
 

@@ -131,6 +131,7 @@ pub enum LiveEvent {
 }
 
 struct Lane {
+    /// Channel number reported (from 1); its sample is `frame[channel - 1]`.
     channel: usize,
     levels: LevelStats,
     tp: TruePeak,
@@ -153,6 +154,8 @@ struct Lane {
 /// The engine. Feed it with [`Engine::process`]; events go to the closure given.
 pub struct Engine {
     rate: u32,
+    /// Channels per incoming frame (the lanes may analyse a subset).
+    frame_channels: usize,
     settings: EngineSettings,
     lanes: Vec<Lane>,
     pos: u64,
@@ -212,6 +215,7 @@ impl Engine {
             .map(|s| ((s * r).round() as u64).max(1));
         Engine {
             rate,
+            frame_channels: channels,
             lanes,
             pos: 0,
             tone_every,
@@ -228,9 +232,23 @@ impl Engine {
         self.rate
     }
 
-    /// Channels.
+    /// Channels per incoming frame.
     pub fn channels(&self) -> usize {
-        self.lanes.len()
+        self.frame_channels
+    }
+
+    /// Analyse only these channels (numbers from 1, as `--channels` gives them); the frames
+    /// still carry every channel. Numbers outside the frame are ignored.
+    pub fn select(mut self, channels: &[usize]) -> Self {
+        let n = self.frame_channels;
+        self.lanes
+            .retain(|l| channels.contains(&l.channel) && l.channel <= n);
+        self
+    }
+
+    /// Channel numbers analysed.
+    pub fn selected(&self) -> Vec<usize> {
+        self.lanes.iter().map(|l| l.channel).collect()
     }
 
     /// Stream position in frames.
@@ -245,7 +263,7 @@ impl Engine {
     /// Feed interleaved frames (any count; summaries and tone analyses fall on their exact
     /// sample positions).
     pub fn process(&mut self, interleaved: &[f32], out: &mut impl FnMut(LiveEvent)) {
-        let ch = self.lanes.len().max(1);
+        let ch = self.frame_channels.max(1);
         let mut rest = interleaved;
         while rest.len() >= ch {
             let frames = rest.len() / ch;
@@ -266,11 +284,12 @@ impl Engine {
     }
 
     fn process_span(&mut self, interleaved: &[f32], out: &mut impl FnMut(LiveEvent)) {
-        let ch = self.lanes.len();
+        let ch = self.frame_channels.max(1);
         let start = self.pos;
         let frames = interleaved.len() / ch;
         let rate = self.rate as f64;
-        for (c, lane) in self.lanes.iter_mut().enumerate() {
+        for lane in self.lanes.iter_mut() {
+            let c = lane.channel - 1;
             self.plane.clear();
             self.plane
                 .extend(interleaved.chunks_exact(ch).map(|f| f[c]));
@@ -405,9 +424,16 @@ impl Engine {
 
     /// Frames were lost: close open episodes, reset state spanning samples, report the gap.
     pub fn gap(&mut self, frames: u64, out: &mut impl FnMut(LiveEvent)) {
-        let rate = self.rate as f64;
         let t_s = self.t(self.pos);
         self.pos += frames;
+        self.restart(out);
+        out(LiveEvent::Gap { t_s, frames });
+    }
+
+    /// The input starts over (a reconnected device): close open episodes and reset state
+    /// spanning samples, without claiming a count of lost frames.
+    pub fn restart(&mut self, out: &mut impl FnMut(LiveEvent)) {
+        let rate = self.rate as f64;
         for lane in &mut self.lanes {
             if let Some(closed) = lane.episodes.flush() {
                 out(LiveEvent::Clip {
@@ -424,7 +450,6 @@ impl Engine {
         if self.next_summary != u64::MAX {
             self.next_summary = self.next_summary.max(self.pos);
         }
-        out(LiveEvent::Gap { t_s, frames });
     }
 
     /// End of input: close open episodes and emit a last (partial) summary if one is due.
@@ -571,6 +596,36 @@ mod tests {
         assert!(onset.t_s > 2.0 && onset.t_s <= 3.1, "{onset:?}");
         let l = onset.fundamental_dbfs.unwrap();
         assert!(l > 20.0 * 0.4f64.log10() - 0.1 && l < 0.0, "{l}");
+    }
+
+    #[test]
+    fn selected_channels_only() {
+        let x = tone(RATE as usize, |_| 0.5, |_| 1.0);
+        // Three channels: silence, the tone, the tone clipped.
+        let frames: Vec<f32> = x
+            .iter()
+            .flat_map(|&v| [0.0, v, v.clamp(-0.25, 0.25)])
+            .collect();
+        let mut e = Engine::new(RATE, 3, None, EngineSettings::default()).select(&[2, 3]);
+        assert_eq!(e.selected(), vec![2, 3]);
+        let mut events = Vec::new();
+        e.process(&frames, &mut |ev| events.push(ev));
+        let LiveEvent::Summary { channels, .. } = events
+            .iter()
+            .find(|e| matches!(e, LiveEvent::Summary { .. }))
+            .unwrap()
+        else {
+            unreachable!()
+        };
+        assert_eq!(
+            channels.iter().map(|c| c.channel).collect::<Vec<_>>(),
+            vec![2, 3]
+        );
+        assert_eq!(channels[0].flat_tops, 0);
+        assert!(channels[1].flat_tops > 1000);
+        assert!(events
+            .iter()
+            .all(|e| !matches!(e, LiveEvent::ClipStarted { channel: 2, .. })));
     }
 
     #[test]

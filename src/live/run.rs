@@ -71,9 +71,41 @@ impl Analysis {
 /// Start the analysis thread. `source_done` tells it the source has finished, so that once the
 /// ring is empty it can end; `capacity` bounds the event channel.
 pub fn spawn_analysis(
+    reader: AnalysisReader,
+    engine: Engine,
+    source_done: Arc<AtomicBool>,
+    capacity: usize,
+) -> std::io::Result<Analysis> {
+    let (_keep, replacements) = crossbeam_channel::bounded(1);
+    spawn_analysis_with(
+        reader,
+        engine,
+        Feed {
+            source_done,
+            replacements,
+            position: Arc::new(AtomicU64::new(0)),
+        },
+        capacity,
+    )
+}
+
+/// How the analysis thread learns about its input beyond the ring itself.
+#[derive(Debug)]
+pub struct Feed {
+    /// Raised when the source has finished for good.
+    pub source_done: Arc<AtomicBool>,
+    /// A new ring's reader, after the input was reopened: the rest of the current ring is
+    /// analysed, then the new one is taken and state spanning samples starts over.
+    pub replacements: Receiver<AnalysisReader>,
+    /// Where the analysis has got to, in frames of stream time (for timestamps elsewhere).
+    pub position: Arc<AtomicU64>,
+}
+
+/// [`spawn_analysis`] with a [`Feed`] that can hand over new rings.
+pub fn spawn_analysis_with(
     mut reader: AnalysisReader,
     mut engine: Engine,
-    source_done: Arc<AtomicBool>,
+    feed: Feed,
     capacity: usize,
 ) -> std::io::Result<Analysis> {
     let (tx, rx) = crossbeam_channel::bounded(capacity.max(1));
@@ -82,16 +114,7 @@ pub fn spawn_analysis(
     let (stop2, dropped2) = (Arc::clone(&stop), Arc::clone(&dropped_events));
     let handle = std::thread::Builder::new()
         .name("brink-analysis".into())
-        .spawn(move || {
-            analysis_loop(
-                &mut reader,
-                &mut engine,
-                &source_done,
-                &stop2,
-                &tx,
-                &dropped2,
-            )
-        })?;
+        .spawn(move || analysis_loop(&mut reader, &mut engine, &feed, &stop2, &tx, &dropped2))?;
     Ok(Analysis {
         events: rx,
         stop,
@@ -112,30 +135,47 @@ fn publish(tx: &Sender<Published>, dropped: &AtomicU64, p: Published) {
 fn analysis_loop(
     reader: &mut AnalysisReader,
     engine: &mut Engine,
-    source_done: &AtomicBool,
+    feed: &Feed,
     stop: &AtomicBool,
     tx: &Sender<Published>,
     dropped_events: &AtomicU64,
 ) -> Totals {
     // Blocks of 10 ms, cut from the ring whatever the source's write sizes.
     let block = ((engine.rate() as usize) / 100).max(1);
-    let ch = engine.channels();
+    let ch = engine.channels().max(1);
     let mut buf = vec![0.0f32; block * ch];
     let mut emit = |ev: LiveEvent| publish(tx, dropped_events, Published::Event(ev));
+    // Counts of rings already retired.
+    let mut retired = Totals::default();
     loop {
         if stop.load(Ordering::Relaxed) {
             break;
         }
         match reader.read_block(&mut buf) {
-            Read::Frames(n) => engine.process(&buf[..n * ch], &mut emit),
+            Read::Frames(n) => {
+                engine.process(&buf[..n * ch], &mut emit);
+                feed.position.store(engine.position(), Ordering::Relaxed);
+            }
             Read::Gap { dropped } => engine.gap(dropped, &mut emit),
             Read::Waiting => {
-                if source_done.load(Ordering::Acquire) {
-                    // Take what is left (less than a block), then end.
+                let done = feed.source_done.load(Ordering::Acquire);
+                let replacement = if done {
+                    None
+                } else {
+                    feed.replacements.try_recv().ok()
+                };
+                if done || replacement.is_some() {
+                    // Take what is left of this ring (less than a block).
                     let left = reader.available();
                     if left > 0 {
                         if let Read::Frames(n) = reader.read_block(&mut buf[..left * ch]) {
                             engine.process(&buf[..n * ch], &mut emit);
+                        }
+                        if let Some(r) = replacement {
+                            // Keep it for the next turn; nothing else can arrive meanwhile.
+                            retire(&mut retired, reader);
+                            *reader = r;
+                            engine.restart(&mut emit);
                         }
                         continue;
                     }
@@ -143,22 +183,34 @@ fn analysis_loop(
                     if let Read::Gap { dropped } = reader.read_block(&mut buf[..0]) {
                         engine.gap(dropped, &mut emit);
                     }
-                    break;
+                    match replacement {
+                        Some(r) => {
+                            retire(&mut retired, reader);
+                            *reader = r;
+                            engine.restart(&mut emit);
+                            continue;
+                        }
+                        None => break,
+                    }
                 }
                 std::thread::sleep(Duration::from_millis(2));
             }
         }
     }
     engine.finish(&mut emit);
-    let c = reader.counters();
-    let totals = Totals {
-        delivered: c.delivered.load(Ordering::Acquire),
-        analysed: reader.frames_read(),
-        dropped_frames: c.dropped.load(Ordering::Acquire),
-        xruns: c.xruns.load(Ordering::Relaxed),
-        dropped_events: dropped_events.load(Ordering::Relaxed),
-    };
+    let mut totals = retired;
+    retire(&mut totals, reader);
+    totals.dropped_events = dropped_events.load(Ordering::Relaxed);
     // The end marker must arrive: wait for room rather than drop it.
     let _ = tx.send_timeout(Published::End(totals), Duration::from_secs(5));
     totals
+}
+
+/// Add a ring's counts to the totals.
+fn retire(totals: &mut Totals, reader: &AnalysisReader) {
+    let c = reader.counters();
+    totals.delivered += c.delivered.load(Ordering::Acquire);
+    totals.analysed += reader.frames_read();
+    totals.dropped_frames += c.dropped.load(Ordering::Acquire);
+    totals.xruns += c.xruns.load(Ordering::Relaxed);
 }

@@ -179,6 +179,10 @@ pub struct LogTotals {
     pub input_losses: u64,
     /// Records that could not be written.
     pub lost_records: u64,
+    /// Frames the input delivered (set with [`LogWriter::set_frames`]).
+    pub frames_delivered: u64,
+    /// Frames analysed; with `dropped_frames` these add up to `frames_delivered`.
+    pub frames_analysed: u64,
 }
 
 /// Format `t` as RFC 3339 UTC with milliseconds, e.g. `2026-12-02T07:12:03.123Z` (rounded down
@@ -553,13 +557,15 @@ impl Record<'_> {
                     C_DETAIL,
                     format!(
                         "summaries={};clip_events={};dropped_frames={};xruns={};\
-                         input_losses={};lost_records={}",
+                         input_losses={};lost_records={};frames_delivered={};frames_analysed={}",
                         totals.summaries,
                         totals.clip_events,
                         totals.dropped_frames,
                         totals.xruns,
                         totals.input_losses,
-                        totals.lost_records
+                        totals.lost_records,
+                        totals.frames_delivered,
+                        totals.frames_analysed
                     ),
                 )
             }
@@ -964,6 +970,12 @@ impl LogWriter {
             return;
         }
         self.emit(&Record::InputRestored { t_s });
+    }
+
+    /// Record the input's frame accounting for the stop record (delivered = analysed + dropped).
+    pub fn set_frames(&mut self, delivered: u64, analysed: u64) {
+        self.totals.frames_delivered = delivered;
+        self.totals.frames_analysed = analysed;
     }
 
     /// Write the `stop` record with the totals (`xruns` from the capture side). Only the first
@@ -1539,7 +1551,7 @@ mod tests {
         assert_eq!(rows[6][col("detail")], "reason=stream error: \"POLLERR\"");
         assert_eq!(
             rows[8][col("detail")],
-            "summaries=1;clip_events=1;dropped_frames=64;xruns=0;input_losses=1;lost_records=0"
+            "summaries=1;clip_events=1;dropped_frames=64;xruns=0;input_losses=1;lost_records=0;frames_delivered=0;frames_analysed=0"
         );
     }
 
