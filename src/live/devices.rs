@@ -40,6 +40,10 @@ pub struct DeviceReport {
     pub default_input: bool,
     /// The host's default output device.
     pub default_output: bool,
+    /// Most input channels (0: no input); the same as `input.channels`, at the top for scripts.
+    pub input_channels: usize,
+    /// Most output channels (0: no output).
+    pub output_channels: usize,
     /// What it captures.
     pub input: Capabilities,
     /// What it plays.
@@ -125,6 +129,13 @@ pub fn report_host(host: &cpal::Host, is_default: bool) -> HostReport {
             } else {
                 Capabilities::default()
             },
+            input_channels: 0,
+            output_channels: 0,
+        })
+        .map(|mut d| {
+            d.input_channels = usize::from(d.input.channels);
+            d.output_channels = usize::from(d.output.channels);
+            d
         })
         .collect();
     report

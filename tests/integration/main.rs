@@ -6,4 +6,5 @@ mod cli;
 mod closed_form;
 mod demo;
 mod live;
+mod servers;
 mod util;

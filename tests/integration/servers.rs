@@ -1,0 +1,768 @@
+//! brink's real capture code against real audio servers, with no sound card: ALSA through a PCM
+//! that reads a raw file (the `file` plugin on a `null` slave), and JACK through a private
+//! server on the dummy driver. The helpers and what they need are in `tests/servers/`.
+//!
+//! A test skips (with a note on stderr) only when the tools it needs are missing and `CI` is
+//! unset; under CI a missing tool is a failure.
+
+use std::f64::consts::PI;
+use std::ffi::{OsStr, OsString};
+use std::os::unix::fs::PermissionsExt;
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, ExitStatus, Stdio};
+use std::sync::{Mutex, MutexGuard};
+use std::time::{Duration, Instant};
+
+use serde_json::Value;
+
+use crate::util::{brink, lin};
+
+const RATE: u32 = 48_000;
+
+/// These tests start servers and keep the CPU busy (the ALSA fixture is not paced): one at a
+/// time.
+static ONE_AT_A_TIME: Mutex<()> = Mutex::new(());
+
+fn one_at_a_time() -> MutexGuard<'static, ()> {
+    ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner())
+}
+
+fn in_ci() -> bool {
+    std::env::var_os("CI").is_some()
+}
+
+/// Whether `tool` is an executable file on `PATH`.
+fn on_path(tool: &str) -> bool {
+    std::env::var_os("PATH").is_some_and(|p| {
+        std::env::split_paths(&p).any(|d| {
+            d.join(tool)
+                .metadata()
+                .is_ok_and(|m| m.is_file() && m.permissions().mode() & 0o111 != 0)
+        })
+    })
+}
+
+/// Whether to skip for want of a tool: `needs` lists (what, present); when any is missing, say
+/// which on stderr and return `true`. Under CI a missing tool fails the test instead.
+fn skip_for_missing(test: &str, needs: &[(&str, bool)]) -> bool {
+    let missing: Vec<&str> = needs.iter().filter(|n| !n.1).map(|n| n.0).collect();
+    if missing.is_empty() {
+        return false;
+    }
+    assert!(
+        !in_ci(),
+        "{test}: missing {} (CI must provide it: see tests/servers/README.md)",
+        missing.join(", ")
+    );
+    eprintln!(
+        "skipping {test}: missing {} (see tests/servers/README.md; with CI set this fails)",
+        missing.join(", ")
+    );
+    true
+}
+
+fn helper(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/servers")
+        .join(name)
+}
+
+/// Run a helper script to completion; panic with its output when it fails.
+fn run_helper(script: &str, args: &[&str], envs: &[(&str, &OsStr)]) -> String {
+    let out = Command::new("bash")
+        .arg(helper(script))
+        .args(args)
+        .envs(envs.iter().copied())
+        .stdin(Stdio::null())
+        .output()
+        .unwrap();
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(out.status.success(), "{script} {args:?} failed:\n{text}");
+    text
+}
+
+/// The complete NDJSON lines of `text` (a line still being written is left out).
+fn complete_records(text: &str) -> Vec<Value> {
+    let end = text.rfind('\n').map_or(0, |i| i + 1);
+    text[..end]
+        .lines()
+        .filter(|l| !l.trim().is_empty())
+        .map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("not JSON ({e}): {l}")))
+        .collect()
+}
+
+/// A short account of a log for failure messages: its first and last lines.
+fn excerpt(recs: &[Value]) -> String {
+    let lines: Vec<String> = recs.iter().map(Value::to_string).collect();
+    if lines.len() <= 30 {
+        return lines.join("\n");
+    }
+    format!(
+        "{}\n... {} more ...\n{}",
+        lines[..20].join("\n"),
+        lines.len() - 30,
+        lines[lines.len() - 10..].join("\n")
+    )
+}
+
+fn kind_of(r: &Value) -> &str {
+    r["kind"].as_str().unwrap_or("")
+}
+
+fn f(v: &Value) -> Option<f64> {
+    v.as_f64()
+}
+
+/// `brink log` running in the background, its records going to a file.
+struct LogRun {
+    child: Child,
+    out: PathBuf,
+    stderr: PathBuf,
+}
+
+impl LogRun {
+    /// Start `brink log ARGS --out DIR/run.ndjson`; `polite`: at a lower priority (`nice`), for
+    /// a run that keeps the CPU busy by design, so that tests running beside it keep up.
+    fn spawn(dir: &Path, args: &[&str], envs: &[(&str, &OsStr)], polite: bool) -> LogRun {
+        let out = dir.join("run.ndjson");
+        let stderr = dir.join("run.stderr");
+        let bin = assert_cmd::cargo::cargo_bin("brink");
+        let mut cmd = if polite {
+            // nice execs brink: the child's pid is brink's.
+            let mut c = Command::new("nice");
+            c.args(["-n", "10"]).arg(bin);
+            c
+        } else {
+            Command::new(bin)
+        };
+        let child = cmd
+            .arg("log")
+            .args(args)
+            .arg("--out")
+            .arg(&out)
+            .envs(envs.iter().copied())
+            .stdin(Stdio::null())
+            .stdout(Stdio::null())
+            .stderr(std::fs::File::create(&stderr).unwrap())
+            .spawn()
+            .unwrap();
+        LogRun { child, out, stderr }
+    }
+
+    fn records(&self) -> Vec<Value> {
+        complete_records(&std::fs::read_to_string(&self.out).unwrap_or_default())
+    }
+
+    fn stderr(&self) -> String {
+        std::fs::read_to_string(&self.stderr).unwrap_or_default()
+    }
+
+    /// Poll the log until `done` holds; panic (with the log so far) when brink exits first or
+    /// `limit` passes.
+    fn wait_for(
+        &mut self,
+        what: &str,
+        limit: Duration,
+        done: impl Fn(&[Value]) -> bool,
+    ) -> Vec<Value> {
+        let t0 = Instant::now();
+        loop {
+            let recs = self.records();
+            if done(&recs) {
+                return recs;
+            }
+            if let Some(status) = self.child.try_wait().unwrap() {
+                panic!(
+                    "brink exited ({status}) before {what}\nstderr:\n{}\nlog:\n{}",
+                    self.stderr(),
+                    excerpt(&recs)
+                );
+            }
+            if t0.elapsed() > limit {
+                panic!(
+                    "no {what} within {limit:?}\nstderr:\n{}\nlog:\n{}",
+                    self.stderr(),
+                    excerpt(&recs)
+                );
+            }
+            std::thread::sleep(Duration::from_millis(50));
+        }
+    }
+
+    /// SIGTERM, then wait (at most 20 s) for the exit: status and the whole log.
+    fn stop(&mut self) -> (ExitStatus, Vec<Value>) {
+        Command::new("kill")
+            .args(["-TERM", &self.child.id().to_string()])
+            .status()
+            .unwrap();
+        let t0 = Instant::now();
+        let status = loop {
+            if let Some(s) = self.child.try_wait().unwrap() {
+                break s;
+            }
+            if t0.elapsed() > Duration::from_secs(20) {
+                let _ = self.child.kill();
+                let _ = self.child.wait();
+                panic!(
+                    "brink did not exit within 20 s of SIGTERM\nstderr:\n{}\nlog:\n{}",
+                    self.stderr(),
+                    excerpt(&self.records())
+                );
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        };
+        (status, self.records())
+    }
+}
+
+impl Drop for LogRun {
+    fn drop(&mut self) {
+        if let Ok(None) = self.child.try_wait() {
+            let _ = self.child.kill();
+            let _ = self.child.wait();
+        }
+    }
+}
+
+/// The `stop` record's totals add up: frames delivered = analysed + dropped, dropped = the sum
+/// of the `dropped` records, and the counts match the records written.
+fn check_accounting(recs: &[Value]) -> (u64, u64, u64) {
+    let stop = recs.last().unwrap();
+    assert_eq!(kind_of(stop), "stop", "stop last:\n{}", excerpt(recs));
+    let t = &stop["totals"];
+    let get = |k: &str| {
+        t[k].as_u64()
+            .unwrap_or_else(|| panic!("stop totals without \"{k}\": {stop}"))
+    };
+    let (delivered, analysed, dropped) = (
+        get("frames_delivered"),
+        get("frames_analysed"),
+        get("dropped_frames"),
+    );
+    assert_eq!(
+        delivered,
+        analysed + dropped,
+        "every delivered frame is analysed or dropped: {stop}"
+    );
+    let dropped_records: u64 = recs
+        .iter()
+        .filter(|r| kind_of(r) == "dropped")
+        .map(|r| r["frames"].as_u64().unwrap())
+        .sum();
+    assert_eq!(
+        dropped_records, dropped,
+        "dropped records add up to the total: {stop}"
+    );
+    let count = |k: &str| recs.iter().filter(|r| kind_of(r) == k).count() as u64;
+    assert_eq!(get("summaries"), count("summary"), "{stop}");
+    assert_eq!(get("clip_events"), count("clip"), "{stop}");
+    let _xruns = get("xruns");
+    (delivered, analysed, dropped)
+}
+
+// ---------------------------------------------------------------------------------------------
+// ALSA: a capture PCM reading a raw file.
+
+/// Set-up of the ALSA fixture: a raw file and a `.asoundrc` in a temporary HOME.
+struct AlsaFixture {
+    dir: tempfile::TempDir,
+}
+
+impl AlsaFixture {
+    /// Raw FLOAT_LE stereo at 48 kHz, 3 s. Channel 1: a clean 997 Hz tone peaking at −12 dBFS
+    /// for 1 s, then a 220 Hz tone driven 6 dB into flat tops at −6 dBFS. Channel 2: 440 Hz at
+    /// −20 dBFS throughout, never clipped (a channel mix-up shows).
+    fn new() -> AlsaFixture {
+        let dir = tempfile::tempdir().unwrap();
+        let clean = RATE as usize;
+        let total = 3 * RATE as usize;
+        let ceiling = lin(-6.0);
+        let mut bytes = Vec::with_capacity(total * 8);
+        for n in 0..total {
+            let t = n as f64 / f64::from(RATE);
+            let ch1 = if n < clean {
+                lin(-12.0) * (2.0 * PI * 997.0 * t).sin()
+            } else {
+                let t1 = (n - clean) as f64 / f64::from(RATE);
+                (2.0 * ceiling * (2.0 * PI * 220.0 * t1).sin()).clamp(-ceiling, ceiling)
+            };
+            let ch2 = lin(-20.0) * (2.0 * PI * 440.0 * t).sin();
+            bytes.extend_from_slice(&(ch1 as f32).to_le_bytes());
+            bytes.extend_from_slice(&(ch2 as f32).to_le_bytes());
+        }
+        let raw = dir.path().join("fixture.f32");
+        std::fs::write(&raw, bytes).unwrap();
+        run_helper(
+            "alsa-fixture.sh",
+            &[
+                "setup",
+                dir.path().to_str().unwrap(),
+                raw.to_str().unwrap(),
+                "FLOAT_LE",
+                "brink_fixture",
+            ],
+            &[],
+        );
+        AlsaFixture { dir }
+    }
+
+    fn home(&self) -> &Path {
+        self.dir.path()
+    }
+
+    /// The environment that makes a child see the fixture (and no other user configuration).
+    fn env(&self) -> Vec<(&'static str, OsString)> {
+        vec![
+            ("HOME", self.home().as_os_str().to_owned()),
+            (
+                "XDG_CONFIG_HOME",
+                self.home().join(".config").into_os_string(),
+            ),
+        ]
+    }
+}
+
+fn alsa_missing(test: &str) -> bool {
+    skip_for_missing(
+        test,
+        &[
+            ("bash", on_path("bash")),
+            (
+                "ALSA's configuration (/usr/share/alsa/alsa.conf, package libasound2-data)",
+                Path::new("/usr/share/alsa/alsa.conf").exists(),
+            ),
+        ],
+    )
+}
+
+/// `brink devices --host alsa --json` lists the fixture by name, as an input with two channels.
+#[test]
+fn alsa_fixture_is_listed_by_brink_devices() {
+    if alsa_missing("alsa_fixture_is_listed_by_brink_devices") {
+        return;
+    }
+    let _one = one_at_a_time();
+    let fx = AlsaFixture::new();
+    let out = brink()
+        .args(["devices", "--host", "alsa", "--json"])
+        .envs(fx.env())
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    let json: Value = serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
+        panic!(
+            "not one JSON document ({e}):\n{}",
+            String::from_utf8_lossy(&out.stdout)
+        )
+    });
+    let hosts = json
+        .get("hosts")
+        .unwrap_or(&json)
+        .as_array()
+        .unwrap_or_else(|| panic!("no list of hosts: {json}"));
+    let alsa = hosts
+        .iter()
+        .find(|h| h["host"] == "alsa" || h["name"] == "alsa")
+        .unwrap_or_else(|| panic!("no alsa host: {json}"));
+    let devices = alsa["devices"]
+        .as_array()
+        .unwrap_or_else(|| panic!("alsa without devices: {alsa}"));
+    let fixture = devices
+        .iter()
+        .find(|d| d["name"] == "brink_fixture")
+        .unwrap_or_else(|| panic!("brink_fixture not listed by name: {alsa}"));
+    let channels = fixture
+        .get("input_channels")
+        .unwrap_or_else(|| panic!("device without \"input_channels\": {fixture}"));
+    assert!(
+        channels.as_u64().is_some_and(|n| n >= 2),
+        "the fixture captures 2 channels: {fixture}"
+    );
+}
+
+/// The fixture through `brink log`: the clean second reads as 997 Hz at −12 dBFS, then flat-top
+/// clip events at −6 dBFS and the 220 Hz fundamental; channel 2 stays 440 Hz at −20 dBFS. The
+/// fixture is not paced (it delivers hundreds of times faster than real time, and past the end of
+/// the file it repeats its last block), so analysis falls behind and frames are dropped: every
+/// frame delivered must be analysed or reported dropped.
+#[test]
+fn alsa_capture_measures_the_fixture_and_accounts_for_every_frame() {
+    if alsa_missing("alsa_capture_measures_the_fixture_and_accounts_for_every_frame") {
+        return;
+    }
+    let _one = one_at_a_time();
+    let fx = AlsaFixture::new();
+    let env = fx.env();
+    let env: Vec<(&str, &OsStr)> = env.iter().map(|(k, v)| (*k, v.as_os_str())).collect();
+    let mut run = LogRun::spawn(
+        fx.home(),
+        &[
+            "--host",
+            "alsa",
+            "--input",
+            "brink_fixture",
+            "--channels",
+            "1-2",
+            "--rate",
+            "48000",
+            "--every",
+            "250ms",
+        ],
+        &env,
+        true,
+    );
+    // Stream time runs far ahead of the wall clock: wait for summaries past the clipped part.
+    run.wait_for("summary past t = 2 s", Duration::from_secs(60), |recs| {
+        recs.iter()
+            .any(|r| kind_of(r) == "summary" && f(&r["t_s"]).is_some_and(|t| t >= 2.0))
+    });
+    let (status, recs) = run.stop();
+    let stderr = run.stderr();
+    let all = excerpt(&recs);
+    assert_eq!(status.code(), Some(0), "{stderr}\n{all}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+
+    let start = &recs[0];
+    assert_eq!(kind_of(start), "start", "{all}");
+    assert_eq!(start["host"], "alsa", "{start}");
+    assert!(
+        start["device"]
+            .as_str()
+            .is_some_and(|d| d.contains("brink_fixture")),
+        "{start}"
+    );
+    assert_eq!(start["sample_rate_hz"], 48_000, "{start}");
+
+    let sums: Vec<&Value> = recs.iter().filter(|r| kind_of(r) == "summary").collect();
+    assert!(!sums.is_empty(), "{all}");
+    let ch = |s: &Value, i: usize| s["channels"][i].clone();
+    let s0 = |c: &Value| c["sample_peak_dbfs"].clone();
+    let ch1_id = ch(sums[0], 0)["channel"].clone();
+
+    // The first interval is the clean tone, read whole (nothing is dropped before the capture
+    // ring fills); its levels are there at once, its fundamental once the tone analysis has
+    // seen enough of it.
+    let (c1, c2) = (ch(sums[0], 0), ch(sums[0], 1));
+    assert!(f(&s0(&c1)).is_some_and(|p| (p + 12.0).abs() < 0.2), "{c1}");
+    assert_eq!(c1["flat_tops"], 0, "{c1}");
+    assert!(f(&s0(&c2)).is_some_and(|p| (p + 20.0).abs() < 0.2), "{c2}");
+    let clean: Vec<&&Value> = sums
+        .iter()
+        .filter(|s| f(&s["t_s"]).is_some_and(|t| t <= 1.0 + 1e-6))
+        .collect();
+    assert!(
+        clean.iter().any(|s| {
+            f(&ch(s, 0)["fundamental_hz"]).is_some_and(|hz| (hz - 997.0).abs() < 0.5)
+                && f(&ch(s, 1)["fundamental_hz"]).is_some_and(|hz| (hz - 440.0).abs() < 0.5)
+        }),
+        "a summary of the clean second with the fundamentals 997 Hz and 440 Hz:\n{all}"
+    );
+    // Nothing in the clean second clips, whatever was dropped.
+    for s in &clean {
+        let c1 = ch(s, 0);
+        assert_eq!(c1["flat_tops"], 0, "clean second: {s}");
+        if let Some(hz) = f(&c1["fundamental_hz"]) {
+            assert!((hz - 997.0).abs() < 0.5, "clean second: {s}");
+        }
+        if let Some(p) = f(&s0(&c1)) {
+            assert!((p + 12.0).abs() < 0.2, "clean second: {s}");
+        }
+    }
+    // Within the file, channel 2 is 440 Hz at −20 dBFS and never flat.
+    for s in sums
+        .iter()
+        .filter(|s| f(&s["t_s"]).is_some_and(|t| t <= 3.0 + 1e-6))
+    {
+        let c2 = ch(s, 1);
+        assert_eq!(c2["flat_tops"], 0, "channel 2: {s}");
+        if let Some(hz) = f(&c2["fundamental_hz"]) {
+            assert!((hz - 440.0).abs() < 0.5, "channel 2: {s}");
+        }
+    }
+    // The clipped part: 220 Hz with flat tops (read whole as long as the first 1.25 s of the
+    // stream fit in the capture ring before analysis falls behind).
+    assert!(
+        sums.iter().any(|s| {
+            let c1 = ch(s, 0);
+            f(&s["t_s"]).is_some_and(|t| (1.25 - 1e-6..=3.0 + 1e-6).contains(&t))
+                && c1["flat_tops"].as_u64().unwrap_or(0) > 0
+                && f(&c1["fundamental_hz"]).is_some_and(|hz| (hz - 220.0).abs() < 0.5)
+        }),
+        "a summary of the clipped tone (220 Hz, flat tops) between 1.25 s and 3 s:\n{all}"
+    );
+
+    // Flat-top clip events, at −6 dBFS, on channel 1, none in the clean second.
+    let clips: Vec<&Value> = recs.iter().filter(|r| kind_of(r) == "clip").collect();
+    assert!(
+        clips.iter().any(|c| c["clip"] == "flat-top"),
+        "flat-top clip events:\n{all}"
+    );
+    for c in &clips {
+        assert_eq!(c["channel"], ch1_id, "only channel 1 clips: {c}");
+        if c["clip"] == "flat-top" {
+            let level = f(&c["level_dbfs"]).unwrap();
+            assert!((level + 6.0).abs() <= 0.2, "flat tops at −6 dBFS: {c}");
+        }
+        if let Some(t) = f(&c["t_s"]) {
+            assert!(t >= 1.0 - 0.01, "no clipping in the clean second: {c}");
+        }
+    }
+
+    let (delivered, _analysed, dropped) = check_accounting(&recs);
+    assert!(delivered >= 2 * u64::from(RATE), "{}", recs.last().unwrap());
+    assert!(
+        dropped > 0,
+        "an unpaced fixture outruns the analysis, so some frames must be dropped: {}",
+        recs.last().unwrap()
+    );
+}
+
+// ---------------------------------------------------------------------------------------------
+// JACK: a private server on the dummy driver, a tone client, a stop and a restart mid-run.
+
+/// A JACK server of our own, stopped when dropped (also when the test fails).
+struct JackServer {
+    name: String,
+    state: PathBuf,
+}
+
+impl JackServer {
+    fn envs(&self) -> [(&str, &OsStr); 1] {
+        [("BRINK_JACK_STATE_DIR", self.state.as_os_str())]
+    }
+
+    fn start(&self) -> String {
+        run_helper(
+            "jack-server.sh",
+            &["start", &self.name, TONE_CLIENT],
+            &self.envs(),
+        )
+    }
+
+    fn stop(&self) -> String {
+        run_helper("jack-server.sh", &["stop", &self.name], &self.envs())
+    }
+}
+
+impl Drop for JackServer {
+    fn drop(&mut self) {
+        let _ = Command::new("bash")
+            .arg(helper("jack-server.sh"))
+            .args(["stop", &self.name])
+            .env("BRINK_JACK_STATE_DIR", &self.state)
+            .stdin(Stdio::null())
+            .output();
+    }
+}
+
+/// The tone client's name: `jack_simple_client` plays 240 Hz on `output1` and 720 Hz on
+/// `output2`, peaks 0.2 (−13.98 dBFS).
+const TONE_CLIENT: &str = "brink_tone";
+
+fn is_tone(s: &Value) -> bool {
+    let near = |v: &Value, want: f64, tol: f64| f(v).is_some_and(|x| (x - want).abs() < tol);
+    let (c1, c2) = (&s["channels"][0], &s["channels"][1]);
+    near(&c1["fundamental_hz"], 240.0, 0.5)
+        && near(&c1["sample_peak_dbfs"], -13.98, 0.2)
+        && near(&c2["fundamental_hz"], 720.0, 0.5)
+        && near(&c2["sample_peak_dbfs"], -13.98, 0.2)
+}
+
+/// Connect the tone client's outputs, in order, to brink's capture ports (cpal's JACK client,
+/// `cpal_client_*`, ports `in_N`), as a person would with `jack_connect`. Waits up to `limit`
+/// for brink's ports to appear; connecting again is harmless.
+fn connect_tone(env: &[(&str, &OsStr)], limit: Duration) -> Vec<String> {
+    let deadline = std::time::Instant::now() + limit;
+    loop {
+        let out = Command::new("jack_lsp")
+            .envs(env.iter().copied())
+            .stdin(Stdio::null())
+            .output()
+            .unwrap();
+        let mut ours: Vec<String> = String::from_utf8_lossy(&out.stdout)
+            .lines()
+            .filter(|l| l.starts_with("cpal_client") && l.contains(":in_"))
+            .map(str::to_string)
+            .collect();
+        ours.sort();
+        if ours.len() >= 2 {
+            for (src, dst) in [("output1", &ours[0]), ("output2", &ours[1])] {
+                let _ = Command::new("jack_connect")
+                    .envs(env.iter().copied())
+                    .arg(format!("{TONE_CLIENT}:{src}"))
+                    .arg(dst)
+                    .stdin(Stdio::null())
+                    .output();
+            }
+            return ours;
+        }
+        assert!(
+            std::time::Instant::now() < deadline,
+            "brink's JACK capture ports did not appear: {}",
+            String::from_utf8_lossy(&out.stdout)
+        );
+        std::thread::sleep(Duration::from_millis(100));
+    }
+}
+
+fn position(recs: &[Value], kind: &str) -> Option<usize> {
+    recs.iter().position(|r| kind_of(r) == kind)
+}
+
+/// `brink log --host jack` with a tone client's ports connected to brink's input by
+/// `jack_connect`: the tone is measured; the server is stopped mid-run (`input-lost`) and
+/// started again with the tone (`input-restored`), the ports are connected again, and
+/// measurement goes on, with no crash and every frame accounted for.
+#[test]
+fn jack_capture_survives_a_server_stop_and_restart() {
+    let test = "jack_capture_survives_a_server_stop_and_restart";
+    if skip_for_missing(
+        test,
+        &[
+            ("bash", on_path("bash")),
+            ("jackd (package jackd2)", on_path("jackd")),
+            ("jack_lsp (package jackd2)", on_path("jack_lsp")),
+            (
+                "jack_simple_client (package jackd2)",
+                on_path("jack_simple_client"),
+            ),
+            (
+                "brink built with JACK (cargo test --features jack; needs libjack-jackd2-dev)",
+                cfg!(feature = "jack"),
+            ),
+        ],
+    ) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let server = JackServer {
+        name: format!("brink-test-{}", std::process::id()),
+        state: dir.path().join("jack-state"),
+    };
+    // A server left by an earlier run that died is stopped first.
+    server.stop();
+    server.start();
+
+    let env: [(&str, &OsStr); 2] = [
+        ("JACK_DEFAULT_SERVER", OsStr::new(&server.name)),
+        ("JACK_NO_START_SERVER", OsStr::new("1")),
+    ];
+    let mut run = LogRun::spawn(
+        dir.path(),
+        &[
+            "--host",
+            "jack",
+            "--channels",
+            "1-2",
+            "--rate",
+            "48000",
+            "--every",
+            "250ms",
+        ],
+        &env,
+        false,
+    );
+    connect_tone(&env, Duration::from_secs(20));
+    run.wait_for("3 summaries of the tone", Duration::from_secs(30), |recs| {
+        recs.iter()
+            .filter(|r| kind_of(r) == "summary" && is_tone(r))
+            .count()
+            >= 3
+    });
+
+    server.stop();
+    run.wait_for(
+        "input-lost record after the server stopped",
+        Duration::from_secs(15),
+        |recs| position(recs, "input-lost").is_some(),
+    );
+    std::thread::sleep(Duration::from_millis(300));
+    server.start();
+    run.wait_for(
+        "input-restored record after the server came back",
+        Duration::from_secs(45),
+        |recs| position(recs, "input-restored").is_some(),
+    );
+    connect_tone(&env, Duration::from_secs(20));
+    let recs = run.wait_for(
+        "input-restored record and 2 summaries of the tone after it",
+        Duration::from_secs(45),
+        |recs| {
+            position(recs, "input-restored").is_some_and(|at| {
+                recs[at..]
+                    .iter()
+                    .filter(|r| kind_of(r) == "summary" && is_tone(r))
+                    .count()
+                    >= 2
+            })
+        },
+    );
+    assert!(
+        !recs.iter().any(|r| kind_of(r) == "stop"),
+        "brink kept running through the restart:\n{}",
+        excerpt(&recs)
+    );
+
+    let (status, recs) = run.stop();
+    let stderr = run.stderr();
+    let all = excerpt(&recs);
+    assert_eq!(status.code(), Some(0), "{stderr}\n{all}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+
+    let start = &recs[0];
+    assert_eq!(kind_of(start), "start", "{all}");
+    assert_eq!(start["host"], "jack", "{start}");
+    assert_eq!(start["sample_rate_hz"], 48_000, "{start}");
+    assert!(start["device"].is_string(), "{start}");
+
+    // In order: tone, lost, restored, tone again.
+    let lost = position(&recs, "input-lost").unwrap();
+    let restored = position(&recs, "input-restored").unwrap();
+    assert!(lost < restored, "{all}");
+    assert!(
+        recs[lost]["reason"].as_str().is_some_and(|s| !s.is_empty()),
+        "{}",
+        recs[lost]
+    );
+    let tone_before = recs[..lost]
+        .iter()
+        .filter(|r| kind_of(r) == "summary" && is_tone(r))
+        .count();
+    assert!(tone_before >= 3, "{all}");
+    // Whatever was measured is the tone: no reading is wrong, whether or not the interval was
+    // whole (before the ports are connected, around the restart, after a drop there may be
+    // fewer readings, never others).
+    for s in recs.iter().filter(|r| kind_of(r) == "summary") {
+        for (i, hz) in [(0, 240.0), (1, 720.0)] {
+            let c = &s["channels"][i];
+            if let Some(x) = f(&c["fundamental_hz"]) {
+                assert!((x - hz).abs() < 0.5, "channel {}: {s}", i + 1);
+            }
+            if let Some(p) = f(&c["sample_peak_dbfs"]) {
+                assert!((p + 13.98).abs() < 0.2, "channel {}: {s}", i + 1);
+            }
+        }
+    }
+    let tone_after = recs[restored..]
+        .iter()
+        .filter(|r| kind_of(r) == "summary" && is_tone(r))
+        .count();
+    assert!(tone_after >= 2, "{all}");
+    assert_eq!(
+        recs.iter().filter(|r| kind_of(r) == "input-lost").count(),
+        recs.iter()
+            .filter(|r| kind_of(r) == "input-restored")
+            .count(),
+        "every loss restored: {all}"
+    );
+    // A sine at −14 dBFS never clips.
+    assert!(!recs.iter().any(|r| kind_of(r) == "clip"), "{all}");
+
+    check_accounting(&recs);
+}
