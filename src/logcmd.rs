@@ -210,10 +210,7 @@ fn run_file<E: Write>(
     let source = FileSource::open(std::path::Path::new(path), args.looping, pace)
         .map_err(|e| format!("{path}: {e}"))?;
     let info = source.info().clone();
-    let selected = match &args.channels {
-        Some(spec) => parse_channels(spec, info.channels).map_err(|e| e.to_string())?,
-        None => (1..=info.channels).collect(),
-    };
+    let selected = selected_channels(args.channels.as_deref(), info.channels)?;
     let (writer, reader) = ring(info.channels, info.sample_rate as usize * 2);
     let engine = Engine::new(
         info.sample_rate,
@@ -243,6 +240,14 @@ fn run_file<E: Write>(
         return Ok(crate::EXIT_FILE_ERROR);
     }
     Ok(code)
+}
+
+/// The channels `--channels` names (numbered from 1), or all of them.
+fn selected_channels(spec: Option<&str>, available: usize) -> Result<Vec<usize>, String> {
+    match spec {
+        Some(spec) => parse_channels(spec, available).map_err(|e| e.to_string()),
+        None => Ok((1..=available).collect()),
+    }
 }
 
 /// Full scale for over detection from the device's sample format ("i16", "i24", "u8", "f32"...).
@@ -284,10 +289,7 @@ fn run_device<E: Write>(
     let host_name = host.id().name().to_lowercase();
     let device = find_input(&host, args.input.as_deref()).map_err(|e| e.to_string())?;
     let info = probe_input(&device, args.rate).map_err(|e| e.to_string())?;
-    let selected = match &args.channels {
-        Some(spec) => parse_channels(spec, info.channels).map_err(|e| e.to_string())?,
-        None => (1..=info.channels).collect(),
-    };
+    let selected = selected_channels(args.channels.as_deref(), info.channels)?;
     let rate = info.sample_rate;
     let ring_frames = rate as usize * 2;
     let (fault_tx, fault_rx) = crossbeam_channel::bounded(64);

@@ -245,8 +245,13 @@ impl ToneAnalyzer {
             return None;
         }
         let plan = self.prepare(n);
-        let centred: Vec<f64> = self.x.iter().map(|v| v - mean).collect();
-        if !self.power_spectrum(&plan, &centred) {
+        // The mean-removed record, in the residual's scratch buffer (overwritten below).
+        let mut centred = std::mem::take(&mut self.resid);
+        centred.clear();
+        centred.extend(self.x.iter().map(|v| v - mean));
+        let ok = self.power_spectrum(&plan, &centred);
+        self.resid = centred;
+        if !ok {
             return None;
         }
         let df = sample_rate / n as f64;
