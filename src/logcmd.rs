@@ -178,7 +178,12 @@ fn pump(
 
 /// Write the stop record and pick the exit status.
 fn finish<E: Write>(mut log: LogWriter, totals: Totals, rate: f64, err: &mut E) -> u8 {
-    log.set_frames(totals.delivered, totals.analysed);
+    log.set_input_counts(
+        totals.delivered,
+        totals.analysed,
+        totals.dropped_frames,
+        totals.dropped_events,
+    );
     log.stop(totals.analysed as f64 / rate, totals.xruns);
     if totals.dropped_events > 0 {
         let _ = writeln!(

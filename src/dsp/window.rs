@@ -5,6 +5,8 @@
 
 use std::f64::consts::PI;
 
+use realfft::num_complex::Complex;
+
 /// The windows brink knows. Each is a periodic cosine sum.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Window {
@@ -73,6 +75,54 @@ impl Window {
         let mut w = vec![0.0; n];
         self.fill(&mut w);
         w
+    }
+
+    /// The window's transform `K(δ) = Σ w[n]·e^(−i2πδn/N)` at `delta` bins, in closed form:
+    /// each cosine term shifts the rectangular window's Dirichlet kernel
+    /// `D(θ) = e^(−iπθ(N−1)/N)·sin(πθ)/sin(πθ/N)` by ± its index.
+    pub fn kernel(self, n: usize, delta: f64) -> Complex<f64> {
+        let nf = n as f64;
+        let dirichlet = |theta: f64| -> Complex<f64> {
+            let den = (PI * theta / nf).sin();
+            let mag = if den.abs() < 1e-300 {
+                nf
+            } else {
+                (PI * theta).sin() / den
+            };
+            Complex::from_polar(mag, -PI * theta * (nf - 1.0) / nf)
+        };
+        let coeffs = self.coefficients();
+        let mut k = dirichlet(delta) * coeffs[0];
+        for (j, &a) in coeffs.iter().enumerate().skip(1) {
+            k += (dirichlet(delta - j as f64) + dirichlet(delta + j as f64)) * (a / 2.0);
+        }
+        k
+    }
+
+    /// Bin `m` of the windowed transform, from the *rectangular* (unwindowed) real-input
+    /// transform `rect` (bins 0..=N/2 of an N-point record, N even): a periodic cosine-sum window
+    /// multiplies in time, so it is a short convolution across bins,
+    /// `X_w[m] = a₀·R[m] + Σ_j (a_j/2)·(R[m−j] + R[m+j])`, with `R[−k] = R̄[k]` and
+    /// `R[N/2+k] = R̄[N/2−k]` for a real record. Exact, as the time-domain product is.
+    pub fn windowed_bin(self, rect: &[Complex<f64>], m: usize) -> Complex<f64> {
+        let half = rect.len() - 1;
+        let at = |k: isize| -> Complex<f64> {
+            if k < 0 {
+                rect[k.unsigned_abs()].conj()
+            } else if k as usize > half {
+                rect[2 * half - k as usize].conj()
+            } else {
+                rect[k as usize]
+            }
+        };
+        let coeffs = self.coefficients();
+        let m = m as isize;
+        let mut x = at(m) * coeffs[0];
+        for (j, &a) in coeffs.iter().enumerate().skip(1) {
+            let j = j as isize;
+            x += (at(m - j) + at(m + j)) * (a / 2.0);
+        }
+        x
     }
 }
 
@@ -190,6 +240,58 @@ mod tests {
             .map(|i| db(response_at(&w, 7.2 + i as f64 * 0.1)))
             .fold(f64::MIN, f64::max);
         assert!(worst < -170.0, "BH7 worst sidelobe {worst}");
+    }
+
+    /// The closed-form kernel against direct summation of the window's transform.
+    #[test]
+    fn kernel_matches_direct_summation() {
+        for (win, n) in [
+            (Window::BlackmanHarris7, 1000),
+            (Window::BlackmanHarris4, 777),
+        ] {
+            let w = win.generate(n);
+            for &delta in &[0.0, 0.3, -0.5, 1.0, 2.71, -6.2, 9.5] {
+                let direct: Complex<f64> = w
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &x)| Complex::from_polar(x, -2.0 * PI * delta * i as f64 / n as f64))
+                    .sum();
+                let k = win.kernel(n, delta);
+                assert!(
+                    (k - direct).norm() < 1e-9 * w.iter().sum::<f64>(),
+                    "{win:?} δ={delta}: {k} vs {direct}"
+                );
+            }
+        }
+    }
+
+    /// Windowing by convolution across bins equals windowing in time (the FFT of `x·w`).
+    #[test]
+    fn windowed_bins_from_the_rectangular_transform() {
+        use realfft::RealFftPlanner;
+        let n = 960;
+        let x: Vec<f64> = (0..n)
+            .map(|i| (0.37 * i as f64).sin() + 0.2 * (1.9 * i as f64 + 0.5).cos() + 0.01)
+            .collect();
+        let mut planner = RealFftPlanner::<f64>::new();
+        let fft = planner.plan_fft_forward(n);
+        let mut input = x.clone();
+        let mut rect = fft.make_output_vec();
+        fft.process(&mut input, &mut rect).expect("fft");
+        for win in [Window::BlackmanHarris4, Window::BlackmanHarris7] {
+            let w = win.generate(n);
+            let mut input: Vec<f64> = x.iter().zip(&w).map(|(a, b)| a * b).collect();
+            let mut want = fft.make_output_vec();
+            fft.process(&mut input, &mut want).expect("fft");
+            for m in (0..=n / 2).step_by(7).chain([0, 1, 2, n / 2 - 1, n / 2]) {
+                let got = win.windowed_bin(&rect, m);
+                assert!(
+                    (got - want[m]).norm() < 1e-9,
+                    "{win:?} bin {m}: {got} vs {}",
+                    want[m]
+                );
+            }
+        }
     }
 
     #[test]

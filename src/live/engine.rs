@@ -143,9 +143,14 @@ struct Lane {
     history: Vec<f32>,
     head: usize,
     filled: usize,
-    scratch: Vec<f32>,
-    tone: ToneAnalyzer,
+    /// Stream position of this lane's next tone analysis.
+    next_tone: u64,
+    /// Where this lane's analyses fall within each tone interval (frames): the lanes take turns
+    /// so that no single block carries every channel's analysis.
+    tone_offset: u64,
     latest: Option<ToneReport>,
+    /// Fundamental of the lane's last tone analysis (starts the next fit).
+    last_f0: Option<f64>,
     /// (THD %, fundamental dBFS) of the previous analysis, for the onset interpolation.
     previous: Option<(f64, Option<f64>)>,
     onset_seen: bool,
@@ -158,8 +163,11 @@ pub struct Engine {
     frame_channels: usize,
     settings: EngineSettings,
     lanes: Vec<Lane>,
+    /// One tone analyser serves every lane in turn (its buffers are the size of one record).
+    tone: ToneAnalyzer,
     pos: u64,
     tone_every: u64,
+    /// The earliest of the lanes' next tone analyses.
     next_tone: u64,
     summary_every: Option<u64>,
     next_summary: u64,
@@ -190,6 +198,7 @@ impl Engine {
         let r = rate as f64;
         let window = ((settings.tone_window_s * r).round() as usize).max(256);
         let gap = (settings.channel.merge_gap_s * r) as u64;
+        let tone_every = ((settings.tone_every_s * r).round() as u64).max(1);
         let lanes = (0..channels)
             .map(|c| Lane {
                 channel: c + 1,
@@ -202,21 +211,22 @@ impl Engine {
                 history: vec![0.0; window],
                 head: 0,
                 filled: 0,
-                scratch: Vec::with_capacity(window),
-                tone: ToneAnalyzer::new(),
+                next_tone: 0,
+                tone_offset: 0,
                 latest: None,
+                last_f0: None,
                 previous: None,
                 onset_seen: false,
             })
             .collect();
-        let tone_every = ((settings.tone_every_s * r).round() as u64).max(1);
         let summary_every = settings
             .summary_every_s
             .map(|s| ((s * r).round() as u64).max(1));
-        Engine {
+        let mut engine = Engine {
             rate,
             frame_channels: channels,
             lanes,
+            tone: ToneAnalyzer::new(),
             pos: 0,
             tone_every,
             next_tone: tone_every,
@@ -224,7 +234,25 @@ impl Engine {
             summary_every,
             settings,
             plane: Vec::new(),
+        };
+        engine.stagger();
+        engine
+    }
+
+    /// Spread the lanes' tone analyses evenly over the tone interval, from `self.pos` on.
+    fn stagger(&mut self) {
+        let count = self.lanes.len().max(1) as u64;
+        let every = self.tone_every;
+        for (i, lane) in self.lanes.iter_mut().enumerate() {
+            lane.tone_offset = every * i as u64 / count;
+            lane.next_tone = self.pos + every + lane.tone_offset;
         }
+        self.next_tone = self
+            .lanes
+            .iter()
+            .map(|l| l.next_tone)
+            .min()
+            .unwrap_or(self.pos + every);
     }
 
     /// Sample rate.
@@ -243,6 +271,7 @@ impl Engine {
         let n = self.frame_channels;
         self.lanes
             .retain(|l| channels.contains(&l.channel) && l.channel <= n);
+        self.stagger();
         self
     }
 
@@ -274,7 +303,6 @@ impl Engine {
             rest = later;
             if self.pos >= self.next_tone {
                 self.analyse_tones(out);
-                self.next_tone = self.pos + self.tone_every;
             }
             if self.pos >= self.next_summary {
                 self.summary(out);
@@ -337,20 +365,26 @@ impl Engine {
         self.pos += frames as u64;
     }
 
+    /// Analyse the tone of every lane whose turn has come.
     fn analyse_tones(&mut self, out: &mut impl FnMut(LiveEvent)) {
         let rate = self.rate as f64;
         let t_s = self.t(self.pos);
         let threshold = self.settings.onset_thd_pct;
+        let (pos, every) = (self.pos, self.tone_every);
         for lane in &mut self.lanes {
+            if lane.next_tone > pos {
+                continue;
+            }
+            lane.next_tone = pos + every;
             if lane.filled < lane.history.len() {
                 continue;
             }
-            lane.scratch.clear();
-            lane.scratch.extend_from_slice(&lane.history[lane.head..]);
-            lane.scratch.extend_from_slice(&lane.history[..lane.head]);
-            let report = lane
-                .tone
-                .analyze(&lane.scratch, rate, &self.settings.channel.tone);
+            // The oldest sample sits at `head`.
+            let (newer, older) = lane.history.split_at(lane.head);
+            let hint = lane.last_f0;
+            let report =
+                self.tone
+                    .analyze_parts(older, newer, rate, &self.settings.channel.tone, hint);
             if let Some((r, thd)) = report
                 .as_ref()
                 .and_then(|r| r.thd_ratio.map(|t| (r, 100.0 * t)))
@@ -378,8 +412,15 @@ impl Engine {
                 }
                 lane.previous = Some((thd, level));
             }
+            lane.last_f0 = report.as_ref().map(|r| r.fundamental_hz);
             lane.latest = report;
         }
+        self.next_tone = self
+            .lanes
+            .iter()
+            .map(|l| l.next_tone)
+            .min()
+            .unwrap_or(pos + every);
     }
 
     fn summary(&mut self, out: &mut impl FnMut(LiveEvent)) {
@@ -446,7 +487,7 @@ impl Engine {
             lane.filled = 0;
             lane.head = 0;
         }
-        self.next_tone = self.pos + self.tone_every;
+        self.stagger();
         if self.next_summary != u64::MAX {
             self.next_summary = self.next_summary.max(self.pos);
         }
@@ -514,6 +555,54 @@ mod tests {
         e.finish(&mut |ev| events.push(ev));
         when.resize(events.len(), e.position());
         (events, when)
+    }
+
+    /// The lanes take turns: with 8 channels, 10 ms blocks and an analysis every 250 ms per
+    /// channel, no block carries more than one channel's analysis, yet every channel is analysed
+    /// four times a second and every summary after the first second has every fundamental.
+    #[test]
+    fn channels_take_turns_for_tone_analysis() {
+        let lanes = 8;
+        let mono = tone(RATE as usize * 3, |_| 0.25, |_| 1.0);
+        let x: Vec<f32> = mono
+            .iter()
+            .flat_map(|&v| std::iter::repeat_n(v, lanes))
+            .collect();
+        let settings = EngineSettings {
+            summary_every_s: Some(0.5),
+            ..EngineSettings::default()
+        };
+        let mut e = Engine::new(RATE, lanes, None, settings);
+        let mut events = Vec::new();
+        let mut analyses = vec![0usize; lanes];
+        let block = (RATE / 100) as usize * lanes;
+        for b in x.chunks(block) {
+            let before: Vec<u64> = e.lanes.iter().map(|l| l.next_tone).collect();
+            e.process(b, &mut |ev| events.push(ev));
+            let moved: Vec<usize> = (0..lanes)
+                .filter(|&i| e.lanes[i].next_tone != before[i])
+                .collect();
+            assert!(moved.len() <= 1, "one block, several analyses: {moved:?}");
+            for i in moved {
+                analyses[i] += 1;
+            }
+        }
+        // 3 s at four a second: 12 turns each (the first second's turns find too little audio).
+        assert!(analyses.iter().all(|&a| a == 11 || a == 12), "{analyses:?}");
+        let summaries: Vec<_> = events
+            .iter()
+            .filter_map(|ev| match ev {
+                LiveEvent::Summary { t_s, channels } if *t_s > 1.49 => Some(channels),
+                _ => None,
+            })
+            .collect();
+        assert!(summaries.len() >= 3);
+        for chans in summaries {
+            for c in chans {
+                let f = c.fundamental_hz.expect("every channel analysed");
+                assert!((f - 997.0).abs() < 1e-6, "{f}");
+            }
+        }
     }
 
     #[test]

@@ -171,7 +171,8 @@ pub struct LogTotals {
     pub summaries: u64,
     /// Clip episodes received.
     pub clip_events: u64,
-    /// Frames lost by the input (sum of the gaps).
+    /// Frames lost by the input: the capture side's own count once
+    /// [`LogWriter::set_input_counts`] has given it, else the sum of the gaps received.
     pub dropped_frames: u64,
     /// Input overruns, as given to [`LogWriter::stop`].
     pub xruns: u64,
@@ -179,10 +180,13 @@ pub struct LogTotals {
     pub input_losses: u64,
     /// Records that could not be written.
     pub lost_records: u64,
-    /// Frames the input delivered (set with [`LogWriter::set_frames`]).
+    /// Frames the input delivered (set with [`LogWriter::set_input_counts`]).
     pub frames_delivered: u64,
     /// Frames analysed; with `dropped_frames` these add up to `frames_delivered`.
     pub frames_analysed: u64,
+    /// Results (summaries, clip events, gaps…) the analysis published while this writer was
+    /// too slow to take them, so they are missing from the log.
+    pub results_missed: u64,
 }
 
 /// Format `t` as RFC 3339 UTC with milliseconds, e.g. `2026-12-02T07:12:03.123Z` (rounded down
@@ -557,7 +561,8 @@ impl Record<'_> {
                     C_DETAIL,
                     format!(
                         "summaries={};clip_events={};dropped_frames={};xruns={};\
-                         input_losses={};lost_records={};frames_delivered={};frames_analysed={}",
+                         input_losses={};lost_records={};frames_delivered={};frames_analysed={};\
+                         results_missed={}",
                         totals.summaries,
                         totals.clip_events,
                         totals.dropped_frames,
@@ -565,7 +570,8 @@ impl Record<'_> {
                         totals.input_losses,
                         totals.lost_records,
                         totals.frames_delivered,
-                        totals.frames_analysed
+                        totals.frames_analysed,
+                        totals.results_missed
                     ),
                 )
             }
@@ -972,10 +978,14 @@ impl LogWriter {
         self.emit(&Record::InputRestored { t_s });
     }
 
-    /// Record the input's frame accounting for the stop record (delivered = analysed + dropped).
-    pub fn set_frames(&mut self, delivered: u64, analysed: u64) {
+    /// Record the input's own accounting for the stop record (delivered = analysed + dropped,
+    /// counted where the frames are, so it holds even when gap records went missing), and the
+    /// results this writer missed.
+    pub fn set_input_counts(&mut self, delivered: u64, analysed: u64, dropped: u64, missed: u64) {
         self.totals.frames_delivered = delivered;
         self.totals.frames_analysed = analysed;
+        self.totals.dropped_frames = dropped;
+        self.totals.results_missed = missed;
     }
 
     /// Write the `stop` record with the totals (`xruns` from the capture side). Only the first
@@ -1551,7 +1561,7 @@ mod tests {
         assert_eq!(rows[6][col("detail")], "reason=stream error: \"POLLERR\"");
         assert_eq!(
             rows[8][col("detail")],
-            "summaries=1;clip_events=1;dropped_frames=64;xruns=0;input_losses=1;lost_records=0;frames_delivered=0;frames_analysed=0"
+            "summaries=1;clip_events=1;dropped_frames=64;xruns=0;input_losses=1;lost_records=0;frames_delivered=0;frames_analysed=0;results_missed=0"
         );
     }
 

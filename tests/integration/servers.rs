@@ -253,10 +253,15 @@ fn check_accounting(recs: &[Value]) -> (u64, u64, u64) {
         .filter(|r| kind_of(r) == "dropped")
         .map(|r| r["frames"].as_u64().unwrap())
         .sum();
-    assert_eq!(
-        dropped_records, dropped,
-        "dropped records add up to the total: {stop}"
-    );
+    // Every gap is a record unless the writer missed results (then it says how many).
+    if get("results_missed") == 0 {
+        assert_eq!(
+            dropped_records, dropped,
+            "dropped records add up to the total: {stop}"
+        );
+    } else {
+        assert!(dropped_records <= dropped, "{stop}");
+    }
     let count = |k: &str| recs.iter().filter(|r| kind_of(r) == k).count() as u64;
     assert_eq!(get("summaries"), count("summary"), "{stop}");
     assert_eq!(get("clip_events"), count("clip"), "{stop}");
@@ -455,12 +460,13 @@ fn alsa_capture_measures_the_fixture_and_accounts_for_every_frame() {
         .iter()
         .filter(|s| f(&s["t_s"]).is_some_and(|t| t <= 1.0 + 1e-6))
         .collect();
+    // The channels take turns for tone analysis (channel 2 an eighth of a second after
+    // channel 1), so only channel 1's first analysis falls inside the clean second.
     assert!(
-        clean.iter().any(|s| {
-            f(&ch(s, 0)["fundamental_hz"]).is_some_and(|hz| (hz - 997.0).abs() < 0.5)
-                && f(&ch(s, 1)["fundamental_hz"]).is_some_and(|hz| (hz - 440.0).abs() < 0.5)
-        }),
-        "a summary of the clean second with the fundamentals 997 Hz and 440 Hz:\n{all}"
+        clean
+            .iter()
+            .any(|s| f(&ch(s, 0)["fundamental_hz"]).is_some_and(|hz| (hz - 997.0).abs() < 0.5)),
+        "a summary of the clean second with the fundamental 997 Hz:\n{all}"
     );
     // Nothing in the clean second clips, whatever was dropped.
     for s in &clean {
@@ -474,6 +480,13 @@ fn alsa_capture_measures_the_fixture_and_accounts_for_every_frame() {
         }
     }
     // Within the file, channel 2 is 440 Hz at −20 dBFS and never flat.
+    assert!(
+        sums.iter().any(|s| {
+            f(&s["t_s"]).is_some_and(|t| t <= 3.0 + 1e-6)
+                && f(&ch(s, 1)["fundamental_hz"]).is_some_and(|hz| (hz - 440.0).abs() < 0.5)
+        }),
+        "a summary with channel 2's 440 Hz:\n{all}"
+    );
     for s in sums
         .iter()
         .filter(|s| f(&s["t_s"]).is_some_and(|t| t <= 3.0 + 1e-6))
