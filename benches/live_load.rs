@@ -93,6 +93,7 @@ impl Counts {
             LiveEvent::Onset(_) => self.onsets += 1,
             LiveEvent::Summary { .. } => self.summaries += 1,
             LiveEvent::Gap { .. } => self.gaps += 1,
+            LiveEvent::Meters { .. } | LiveEvent::Tone { .. } => {}
         }
     }
 }

@@ -61,6 +61,11 @@ pub enum Command {
     /// Measure live, headless: summaries every interval and clip events as they happen,
     /// as NDJSON or CSV lines (to standard output or a rotating file).
     Log(crate::logcmd::LogArgs),
+    /// The terminal dashboard on a live input, a WAV file (--input file:PATH) or a log being
+    /// written (--follow FILE): meters, clip lamps, harmonic bars, odd/even balance.
+    Watch(crate::watch::WatchArgs),
+    /// The dashboard on the bundled demo tones, looping; no audio hardware needed.
+    Demo(crate::watch::DemoArgs),
     /// List the audio hosts and devices this machine offers.
     Devices(DevicesArgs),
 }
@@ -123,6 +128,11 @@ pub struct ScanArgs {
     /// Clipped runs of one kind closer than this join one episode [default: 100ms].
     #[arg(long, value_parser = crate::gen::parse_duration)]
     pub merge_gap: Option<std::time::Duration>,
+    /// Measure intermodulation distortion over the tone span: smpte (sidebands f2 ± n·f1 of a
+    /// low and a high tone, re the high tone), twin (f2−f1, 2f1−f2, 2f2−f1 of two close tones,
+    /// re the sum of both tones) or auto (twin when f2 < 2·f1).
+    #[arg(long, value_name = "METHOD")]
+    pub imd: Option<crate::dsp::imd::ImdMethod>,
 }
 
 /// Validated settings of a scan run.
@@ -159,6 +169,7 @@ impl ScanArgs {
                 flat_tolerance: self.flat_tolerance,
                 flat_min_level_dbfs: self.flat_min_level,
             },
+            watch: Default::default(),
         }
     }
 
@@ -168,7 +179,9 @@ impl ScanArgs {
         let merged = config::builtin_defaults()
             .merge(files)
             .merge(self.as_config());
-        plan_from(&merged)
+        let mut plan = plan_from(&merged)?;
+        plan.settings.channel.imd = self.imd.map(crate::dsp::imd::ImdSettings::with_method);
+        Ok(plan)
     }
 }
 

@@ -21,11 +21,21 @@
 //! over_length = 3
 //! flat_tolerance = 0.001
 //! flat_min_level_dbfs = -40.0
+//!
+//! [watch]                    # the terminal dashboard: brink watch, brink demo
+//! meter = "peak"             # "peak", "ppm1", "ppm2" or "vu"
+//! fps = 20
+//! onset_pct = 1.0
+//! snapshot_dir = "."
 //! ```
 //!
 //! Files are looked for in this order by [`layered`]: the user's file ([`user_config_path`]) if it
 //! exists, then the file named with `--config` on top of it. `config/default.toml` in the source
 //! tree documents every key.
+
+// Config errors carry the file, the place and the text people need; they are made once per
+// run, so their size costs nothing worth boxing for.
+#![allow(clippy::result_large_err)]
 
 use std::ffi::OsString;
 use std::fmt;
@@ -35,7 +45,9 @@ use std::time::Duration;
 
 use serde::de::{self, Deserializer, Visitor};
 use serde::Deserialize;
+use toml::Spanned;
 
+use crate::dsp::ballistics::Ballistics;
 use crate::gen::{parse_duration, GenError};
 
 /// Shortest `every` and `tone_span` accepted: below this a slice holds a handful of samples.
@@ -50,6 +62,9 @@ const MAX_ORDER_RANGE: std::ops::RangeInclusive<i64> = 2..=40;
 /// Allowed over lengths in samples (the same range as `--over-length`).
 const OVER_LENGTH_RANGE: std::ops::RangeInclusive<i64> = 1..=u16::MAX as i64;
 
+/// Allowed screen frame rates, frames a second (the same range as `--fps`).
+const FPS_RANGE: std::ops::RangeInclusive<i64> = 1..=30;
+
 /// A whole configuration file, checked. `None` means the file does not set the key.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ConfigFile {
@@ -57,6 +72,8 @@ pub struct ConfigFile {
     pub scan: ScanSection,
     /// `[measure]`: measurement settings shared by every mode.
     pub measure: MeasureSection,
+    /// `[watch]`: options of the terminal dashboard (`brink watch`, `brink demo`).
+    pub watch: WatchSection,
 }
 
 /// The `[scan]` table.
@@ -92,6 +109,20 @@ pub struct MeasureSection {
     pub flat_min_level_dbfs: Option<f64>,
 }
 
+/// The `[watch]` table.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct WatchSection {
+    /// `meter`: meter ballistics: "peak", "ppm1", "ppm2" or "vu" (`--meter`).
+    pub meter: Option<Ballistics>,
+    /// `fps`: most screen frames a second, 1..=30 (`--fps`).
+    pub fps: Option<u32>,
+    /// `onset_pct`: THD (%) whose first crossing marks the clipping onset, above 0 and below 100
+    /// (`--onset`).
+    pub onset_pct: Option<f64>,
+    /// `snapshot_dir`: folder where snapshots are saved (`--snapshot-dir`).
+    pub snapshot_dir: Option<PathBuf>,
+}
+
 impl ConfigFile {
     /// Join two layers: every key set in `over` wins, keys `over` leaves unset keep `self`'s value.
     pub fn merge(self, over: ConfigFile) -> ConfigFile {
@@ -114,13 +145,19 @@ impl ConfigFile {
                     .flat_min_level_dbfs
                     .or(self.measure.flat_min_level_dbfs),
             },
+            watch: WatchSection {
+                meter: over.watch.meter.or(self.watch.meter),
+                fps: over.watch.fps.or(self.watch.fps),
+                onset_pct: over.watch.onset_pct.or(self.watch.onset_pct),
+                snapshot_dir: over.watch.snapshot_dir.or(self.watch.snapshot_dir),
+            },
         }
     }
 }
 
-/// The built-in defaults (those of `brink scan`) as a configuration: every key that has a default
-/// is `Some`. `every` and `fundamental_hz` have none (no time line; the strongest tone) and stay
-/// `None`.
+/// The built-in defaults (those of `brink scan` and of the dashboard) as a configuration: every key
+/// that has a default is `Some`. `every` and `fundamental_hz` have none (no time line; the
+/// strongest tone) and stay `None`.
 pub fn builtin_defaults() -> ConfigFile {
     ConfigFile {
         scan: ScanSection {
@@ -137,6 +174,12 @@ pub fn builtin_defaults() -> ConfigFile {
             over_length: Some(3),
             flat_tolerance: Some(0.001),
             flat_min_level_dbfs: Some(-40.0),
+        },
+        watch: WatchSection {
+            meter: Some(Ballistics::SamplePeak),
+            fps: Some(20),
+            onset_pct: Some(1.0),
+            snapshot_dir: Some(PathBuf::from(".")),
         },
     }
 }
@@ -191,10 +234,12 @@ pub enum ConfigError {
         message: String,
     },
     /// A key whose value is of the right type but not usable.
-    #[error("{}: [{section}] {key} = {value} {problem}", .path.display())]
+    #[error("{}{}: [{section}] {key} = {value} {problem}", .path.display(), At(*.at))]
     Value {
         /// The file.
         path: PathBuf,
+        /// Where the value starts, when known (`[watch]` keys).
+        at: Option<Position>,
         /// The table holding the key.
         section: &'static str,
         /// The key.
@@ -214,6 +259,8 @@ struct RawFile {
     scan: RawScan,
     #[serde(default)]
     measure: RawMeasure,
+    #[serde(default)]
+    watch: RawWatch,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -235,6 +282,16 @@ struct RawMeasure {
     over_length: Option<Int>,
     flat_tolerance: Option<Num>,
     flat_min_level_dbfs: Option<Num>,
+}
+
+/// Each value with its place in the text, for errors that name line and column.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawWatch {
+    meter: Option<Spanned<String>>,
+    fps: Option<Spanned<Int>>,
+    onset_pct: Option<Spanned<Num>>,
+    snapshot_dir: Option<Spanned<String>>,
 }
 
 /// A number as written: integer or float (`20` and `20.0` both do).
@@ -314,7 +371,7 @@ pub fn parse(text: &str, origin: &Path) -> Result<ConfigFile, ConfigError> {
         at: e.span().map(|s| position(text, s.start)),
         message: one_line(e.message()),
     })?;
-    Checker { path: origin }.check(raw)
+    Checker { path: origin, text }.check(raw)
 }
 
 /// Read, parse and check a configuration file. A file that does not exist is
@@ -398,6 +455,8 @@ fn one_line(msg: &str) -> String {
 /// Checks values of one file and names it in errors.
 struct Checker<'a> {
     path: &'a Path,
+    /// The file's text, to turn spans into line and column.
+    text: &'a str,
 }
 
 impl Checker<'_> {
@@ -408,8 +467,20 @@ impl Checker<'_> {
         value: impl fmt::Display,
         problem: impl Into<String>,
     ) -> ConfigError {
+        self.bad_at(None, section, key, value, problem)
+    }
+
+    fn bad_at(
+        &self,
+        at: Option<Position>,
+        section: &'static str,
+        key: &'static str,
+        value: impl fmt::Display,
+        problem: impl Into<String>,
+    ) -> ConfigError {
         ConfigError::Value {
             path: self.path.to_path_buf(),
+            at,
             section,
             key,
             value: value.to_string(),
@@ -458,8 +529,8 @@ impl Checker<'_> {
                 return Err(self.bad(M, "fundamental_hz", fmt_f(v), "must be above 0 Hz"));
             }
         }
-        let max_order = self.int(M, "max_order", m.max_order, MAX_ORDER_RANGE)?;
-        let over_length = self.int(M, "over_length", m.over_length, OVER_LENGTH_RANGE)?;
+        let max_order = self.int(None, M, "max_order", m.max_order, MAX_ORDER_RANGE)?;
+        let over_length = self.int(None, M, "over_length", m.over_length, OVER_LENGTH_RANGE)?;
         if let Some(v) = flat_tolerance {
             if !(v > 0.0 && v < 0.5) {
                 return Err(self.bad(
@@ -491,7 +562,73 @@ impl Checker<'_> {
                 flat_tolerance,
                 flat_min_level_dbfs,
             },
+            watch: self.watch(raw.watch)?,
         })
+    }
+
+    /// The `[watch]` table; errors name the value's line and column.
+    fn watch(&self, w: RawWatch) -> Result<WatchSection, ConfigError> {
+        const W: &str = "watch";
+        let (meter, at) = self.unspan(w.meter);
+        let meter = match meter {
+            None => None,
+            Some(text) => Some(text.parse::<Ballistics>().map_err(|_| {
+                self.bad_at(
+                    at,
+                    W,
+                    "meter",
+                    format!("{text:?}"),
+                    format!(
+                        "is not a meter: expected one of {}",
+                        Ballistics::keys_list()
+                    ),
+                )
+            })?),
+        };
+        let (fps, at) = self.unspan(w.fps);
+        let fps = self.int(at, W, "fps", fps, FPS_RANGE)?;
+        let (onset_pct, at) = self.unspan(w.onset_pct);
+        let onset_pct = onset_pct.map(|Num(v)| v);
+        if let Some(v) = onset_pct {
+            if !(v > 0.0 && v < 100.0) {
+                return Err(self.bad_at(
+                    at,
+                    W,
+                    "onset_pct",
+                    fmt_f(v),
+                    "must be above 0 and below 100 (THD, %)",
+                ));
+            }
+        }
+        let (snapshot_dir, at) = self.unspan(w.snapshot_dir);
+        if let Some(d) = &snapshot_dir {
+            if d.is_empty() {
+                return Err(self.bad_at(
+                    at,
+                    W,
+                    "snapshot_dir",
+                    "\"\"",
+                    "must name a folder, e.g. \".\" or \"snapshots\"",
+                ));
+            }
+        }
+        Ok(WatchSection {
+            meter,
+            fps,
+            onset_pct,
+            snapshot_dir: snapshot_dir.map(PathBuf::from),
+        })
+    }
+
+    /// A value without its span, and where the span starts.
+    fn unspan<T>(&self, v: Option<Spanned<T>>) -> (Option<T>, Option<Position>) {
+        match v {
+            None => (None, None),
+            Some(s) => {
+                let at = position(self.text, s.span().start);
+                (Some(s.into_inner()), Some(at))
+            }
+        }
     }
 
     /// A `[scan]` duration string: parses as on the command line, at least `min`, at most
@@ -527,20 +664,23 @@ impl Checker<'_> {
         Ok(Some(d))
     }
 
-    /// An integer key within `range`.
-    fn int(
+    /// An integer key within `range` (which must fit `T`); `at` is where the value starts, when
+    /// known.
+    fn int<T: TryFrom<i64>>(
         &self,
+        at: Option<Position>,
         section: &'static str,
         key: &'static str,
         v: Option<Int>,
         range: std::ops::RangeInclusive<i64>,
-    ) -> Result<Option<u16>, ConfigError> {
+    ) -> Result<Option<T>, ConfigError> {
         let Some(Int(v)) = v else {
             return Ok(None);
         };
-        match u16::try_from(v) {
+        match T::try_from(v) {
             Ok(n) if range.contains(&v) => Ok(Some(n)),
-            _ => Err(self.bad(
+            _ => Err(self.bad_at(
+                at,
                 section,
                 key,
                 v,
@@ -626,6 +766,11 @@ mod tests {
             f.flat_min_level_dbfs, w.flat_min_level_dbfs,
             "flat_min_level_dbfs"
         );
+        let (f, w) = (&file.watch, &want.watch);
+        assert_eq!(f.meter, w.meter, "meter");
+        assert_eq!(f.fps, w.fps, "fps");
+        assert_eq!(f.onset_pct, w.onset_pct, "onset_pct");
+        assert_eq!(f.snapshot_dir, w.snapshot_dir, "snapshot_dir");
         // And nothing the field list above forgot.
         assert_eq!(file, want);
     }
@@ -669,6 +814,26 @@ mod tests {
         let log = preset("lab-logger.toml");
         assert_eq!(log.scan.every, Some(Duration::from_secs(1)));
         assert_eq!(log.scan.json, Some(true));
+
+        // [watch]: PPM Type II for the live engineer, sample peak and saved snapshots on the bench,
+        // built-in values for the unattended logger.
+        assert_eq!(sc.watch.meter, Some(Ballistics::PpmType2));
+        assert_eq!(amp.watch.meter, Some(Ballistics::SamplePeak));
+        assert_eq!(amp.watch.onset_pct, Some(1.0));
+        assert_eq!(amp.watch.snapshot_dir, Some(PathBuf::from("snapshots")));
+        assert_eq!(log.watch, WatchSection::default());
+    }
+
+    #[test]
+    fn builtin_watch_defaults_match_the_engine_and_the_screen() {
+        let w = builtin_defaults().watch;
+        assert_eq!(
+            w.onset_pct,
+            Some(crate::live::engine::EngineSettings::default().onset_thd_pct)
+        );
+        assert!(FPS_RANGE.contains(&i64::from(w.fps.unwrap())));
+        assert_eq!(w.meter, Some(Ballistics::SamplePeak));
+        assert_eq!(w.snapshot_dir.as_deref(), Some(Path::new(".")));
     }
 
     #[test]
@@ -701,6 +866,33 @@ mod tests {
             builtin_defaults().merge(ConfigFile::default()),
             builtin_defaults()
         );
+    }
+
+    #[test]
+    fn merge_lets_the_upper_layer_win_in_watch() {
+        let base = parse(
+            "[watch]\nmeter = \"vu\"\nfps = 10\nsnapshot_dir = \"base\"\n",
+            Path::new("base.toml"),
+        )
+        .unwrap();
+        let over = parse(
+            "[watch]\nmeter = \"ppm1\"\nonset_pct = 3.0\n",
+            Path::new("over.toml"),
+        )
+        .unwrap();
+        let m = base.clone().merge(over.clone());
+        assert_eq!(m.watch.meter, Some(Ballistics::PpmType1));
+        assert_eq!(m.watch.fps, Some(10));
+        assert_eq!(m.watch.onset_pct, Some(3.0));
+        assert_eq!(m.watch.snapshot_dir, Some(PathBuf::from("base")));
+        let r = over.merge(base.clone());
+        assert_eq!(r.watch.meter, Some(Ballistics::Vu));
+        assert_eq!(r.watch.onset_pct, Some(3.0));
+        // A file on top of the built-in values replaces only what it sets.
+        let d = builtin_defaults().merge(base);
+        assert_eq!(d.watch.meter, Some(Ballistics::Vu));
+        assert_eq!(d.watch.onset_pct, Some(1.0));
+        assert_eq!(d.scan, builtin_defaults().scan);
     }
 
     #[test]
@@ -820,6 +1012,131 @@ mod tests {
         assert!(parse("[measure]\nband_high_hz = 20.0\n", Path::new("x")).is_ok());
         assert!(parse("[measure]\nband_high_hz = 0.0\n", Path::new("x")).is_err());
         assert!(parse("[measure]\nband_low_hz = 30000.0\n", Path::new("x")).is_ok());
+    }
+
+    #[test]
+    fn bad_watch_values_name_line_column_and_allowed_values() {
+        assert_eq!(
+            err("[watch]\nmeter = \"loud\"\n"),
+            "config/x.toml:2:9: [watch] meter = \"loud\" is not a meter: \
+             expected one of peak, ppm1, ppm2, vu"
+        );
+        assert_eq!(
+            err("[watch]\nfps = 0\n"),
+            "config/x.toml:2:7: [watch] fps = 0 is outside 1..=30"
+        );
+        assert_eq!(
+            err("[watch]\nfps = 31\n"),
+            "config/x.toml:2:7: [watch] fps = 31 is outside 1..=30"
+        );
+        assert_eq!(
+            err("[watch]\nonset_pct = 100\n"),
+            "config/x.toml:2:13: [watch] onset_pct = 100.0 must be above 0 and below 100 (THD, %)"
+        );
+        assert_eq!(
+            err("[watch]\nsnapshot_dir = \"\"\n"),
+            "config/x.toml:2:16: [watch] snapshot_dir = \"\" must name a folder, \
+             e.g. \".\" or \"snapshots\""
+        );
+        // Lines and columns count from the top of the file, in characters.
+        let e = err("# é\n[scan]\njson = true\n\n[watch]\nfps = 20\n  meter   = \"PPM2\"\n");
+        assert!(
+            e.starts_with("config/x.toml:7:13: [watch] meter = \"PPM2\" "),
+            "{e}"
+        );
+        let cases: &[(&str, &str)] = &[
+            ("[watch]\nmeter = \"\"\n", "2:9: [watch] meter = \"\" "),
+            (
+                "[watch]\nmeter = \"ppm\"\n",
+                "2:9: [watch] meter = \"ppm\" ",
+            ),
+            ("[watch]\nfps = -1\n", "2:7: [watch] fps = -1 "),
+            (
+                "[watch]\nfps = 5000000000\n",
+                "2:7: [watch] fps = 5000000000 ",
+            ),
+            (
+                "[watch]\nonset_pct = 0.0\n",
+                "2:13: [watch] onset_pct = 0.0 ",
+            ),
+            (
+                "[watch]\nonset_pct = -1\n",
+                "2:13: [watch] onset_pct = -1.0 ",
+            ),
+            (
+                "[watch]\nonset_pct = 100.5\n",
+                "2:13: [watch] onset_pct = 100.5 ",
+            ),
+            (
+                "[watch]\nonset_pct = nan\n",
+                "2:13: [watch] onset_pct = nan ",
+            ),
+            (
+                "[watch]\nonset_pct = inf\n",
+                "2:13: [watch] onset_pct = inf ",
+            ),
+        ];
+        for (text, want) in cases {
+            let e = err(text);
+            assert!(e.starts_with("config/x.toml:"), "{e}");
+            assert!(e.contains(want), "{text:?}: {e} lacks {want}");
+        }
+        // Wrong types are parse errors, also with line and column.
+        let e = err("[watch]\nmeter = 2\n");
+        assert!(e.starts_with("config/x.toml:2:9: invalid type"), "{e}");
+        let e = err("[watch]\nfps = 20.0\n");
+        assert!(e.starts_with("config/x.toml:2:7: "), "{e}");
+        assert!(e.contains("expected a whole number"), "{e}");
+        let e = err("[watch]\nonset_pct = \"1%\"\n");
+        assert!(e.starts_with("config/x.toml:2:13: "), "{e}");
+        assert!(e.contains("expected a number"), "{e}");
+        let e = err("[watch]\nsnapshot_dir = 5\n");
+        assert!(e.starts_with("config/x.toml:2:16: "), "{e}");
+        let e = err("[watch]\nfps = 20\nframes = 20\n");
+        assert!(
+            e.starts_with("config/x.toml:3:1: unknown field `frames`"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn watch_values_come_through() {
+        let c = parse(
+            "[watch]\nmeter = \"ppm2\"\nfps = 30\nonset_pct = 0.5\n\
+             snapshot_dir = \"/tmp/snaps\"\n",
+            Path::new("x.toml"),
+        )
+        .unwrap();
+        assert_eq!(
+            c.watch,
+            WatchSection {
+                meter: Some(Ballistics::PpmType2),
+                fps: Some(30),
+                onset_pct: Some(0.5),
+                snapshot_dir: Some(PathBuf::from("/tmp/snaps")),
+            }
+        );
+        assert_eq!(c.scan, ScanSection::default());
+        assert_eq!(c.measure, MeasureSection::default());
+        for (key, want) in [
+            ("peak", Ballistics::SamplePeak),
+            ("ppm1", Ballistics::PpmType1),
+            ("ppm2", Ballistics::PpmType2),
+            ("vu", Ballistics::Vu),
+        ] {
+            let c = parse(&format!("[watch]\nmeter = {key:?}\n"), Path::new("x")).unwrap();
+            assert_eq!(c.watch.meter, Some(want), "{key}");
+        }
+        let c = parse("[watch]\nfps = 1\nonset_pct = 3\n", Path::new("x")).unwrap();
+        assert_eq!(c.watch.fps, Some(1));
+        assert_eq!(c.watch.onset_pct, Some(3.0));
+        assert_eq!(c.watch.meter, None);
+        let c = parse("[watch]\nonset_pct = 99.9\n", Path::new("x")).unwrap();
+        assert_eq!(c.watch.onset_pct, Some(99.9));
+        assert_eq!(
+            parse("[watch]\n", Path::new("x")).unwrap(),
+            ConfigFile::default()
+        );
     }
 
     #[test]

@@ -2,7 +2,8 @@
 //!
 //! The data's path: [`source`] (where samples come from) → [`dsp`] (pure numerics) →
 //! [`analysis`] (per-channel state and reports) → [`sink`] (text, JSON). [`scan`] drives the path
-//! for files; [`gen`] makes test signals. The binary only calls [`run`].
+//! for files; [`live`] runs it on a live input; [`ui`] draws it on a terminal; [`gen`] makes test
+//! signals. The binary only calls [`run`].
 #![warn(missing_docs)]
 
 pub mod analysis;
@@ -15,6 +16,8 @@ pub mod logcmd;
 pub mod scan;
 pub mod sink;
 pub mod source;
+pub mod ui;
+pub mod watch;
 
 use std::ffi::OsString;
 use std::io::{self, BufWriter, Write};
@@ -53,6 +56,18 @@ where
             // Records go straight to their target, each flushed as written.
             drop(out);
             return ExitCode::from(logcmd::run_log(&args, &mut err));
+        }
+        Command::Watch(args) => {
+            drop(out);
+            return ExitCode::from(watch::run_watch(&args, &mut err));
+        }
+        Command::Demo(args) => {
+            if args.list {
+                watch::run_demo(&args, &mut out, &mut err)
+            } else {
+                drop(out);
+                return ExitCode::from(watch::run_demo(&args, &mut io::stdout(), &mut err));
+            }
         }
         Command::Devices(args) => run_devices(&args, &mut out, &mut err),
         Command::Gen(args) => match gen::run(&args, &mut out) {

@@ -13,15 +13,10 @@ use clap::Args;
 
 use crate::cli::plan_from;
 use crate::config;
-use std::sync::atomic::AtomicU64;
-use std::time::Instant;
-
-use crate::live::capture::{open_input, probe_input, Capture, CaptureFault};
-use crate::live::devices::{find_host, find_input, parse_channels};
-use crate::live::engine::{Engine, EngineSettings};
-use crate::live::ring::{ring, AnalysisReader, Counters};
-use crate::live::run::{spawn_analysis, spawn_analysis_with, Feed, Published, Totals};
-use crate::live::source::{FileSource, Pace};
+use crate::live::engine::EngineSettings;
+use crate::live::run::{Published, Totals};
+use crate::live::session::{Notice, Session, SourceSpec};
+use crate::live::source::Pace;
 use crate::sink::log::{LogFormat, LogMeta, LogWriter, Rotation, Target};
 
 /// Exit status when measurement completed but some log lines could not be written.
@@ -143,35 +138,77 @@ fn run<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
         },
         None => Target::Stdout,
     };
-    let open_log = |meta: LogMeta| {
-        LogWriter::open(target.clone(), args.format, meta, Box::new(SystemTime::now))
-            .map_err(|e| e.to_string())
+    let spec = match args.input.as_deref().and_then(|i| i.strip_prefix("file:")) {
+        Some(path) => SourceSpec::File {
+            path: PathBuf::from(path),
+            looping: args.looping,
+            pace: if args.unpaced {
+                Pace::Unpaced
+            } else {
+                Pace::RealTime
+            },
+        },
+        None => SourceSpec::Device {
+            host: args.host.clone(),
+            input: args.input.clone(),
+            rate: args.rate,
+        },
     };
-    match args.input.as_deref().and_then(|i| i.strip_prefix("file:")) {
-        Some(path) => run_file(args, path, settings, &stop, open_log, err),
-        None => run_device(args, settings, &stop, open_log, err),
+    let mut session = Session::start(&spec, args.channels.as_deref(), settings, 4096)?;
+    let meta = &session.meta;
+    let mut log = LogWriter::open(
+        target,
+        args.format,
+        LogMeta {
+            host: meta.host.clone(),
+            device: meta.device.clone(),
+            sample_rate_hz: meta.sample_rate_hz,
+            channels: meta.channels.clone(),
+        },
+        Box::new(SystemTime::now),
+    )
+    .map_err(|e| e.to_string())?;
+    let rate = f64::from(meta.sample_rate_hz);
+    let totals = pump(&mut session, &mut log, &stop);
+    let (totals, source_error) = session.finish(totals);
+    let code = finish(log, totals, rate, err);
+    if let Some(e) = source_error {
+        let _ = writeln!(err, "brink log: {e}");
+        return Ok(crate::EXIT_FILE_ERROR);
     }
+    Ok(code)
 }
 
-/// Wait for the analysis thread's findings and write them until it ends; `tick` runs between
-/// waits (supervision). Returns the totals.
-fn pump(
-    analysis: &crate::live::run::Analysis,
-    log: &mut LogWriter,
-    stop: &AtomicBool,
-    mut tick: impl FnMut(&mut LogWriter, bool),
-) -> Totals {
+/// Write the analysis thread's findings until it ends, supervising the input between waits.
+/// Returns the totals from its end marker (`None` if it vanished without one).
+fn pump(session: &mut Session, log: &mut LogWriter, stop: &AtomicBool) -> Option<Totals> {
+    let mut stopping = false;
     loop {
-        let stopping = stop.load(Ordering::Relaxed) || log.is_closed();
-        if stopping {
-            stop.store(true, Ordering::Relaxed);
+        if !stopping && (stop.load(Ordering::Relaxed) || log.is_closed()) {
+            // Our own shutdown: stop the source; the analysis drains the ring and ends.
+            stopping = true;
+            session.stop();
         }
-        tick(log, stopping);
-        match analysis.events.recv_timeout(Duration::from_millis(50)) {
+        if !stopping {
+            for notice in session.supervise() {
+                match notice {
+                    Notice::Lost(reason) => log.input_lost(session.t_s(), &reason),
+                    Notice::Restored => log.input_restored(session.t_s()),
+                    Notice::Trouble(msg) => {
+                        let _ = writeln!(std::io::stderr(), "brink log: input: {msg}");
+                    }
+                }
+            }
+        }
+        match session
+            .analysis
+            .events
+            .recv_timeout(Duration::from_millis(50))
+        {
             Ok(Published::Event(ev)) => log.event(&ev),
-            Ok(Published::End(t)) => return t,
+            Ok(Published::End(t)) => return Some(t),
             Err(crossbeam_channel::RecvTimeoutError::Timeout) => {}
-            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => return Totals::default(),
+            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => return None,
         }
     }
 }
@@ -197,223 +234,4 @@ fn finish<E: Write>(mut log: LogWriter, totals: Totals, rate: f64, err: &mut E) 
     } else {
         crate::EXIT_OK
     }
-}
-
-fn run_file<E: Write>(
-    args: &LogArgs,
-    path: &str,
-    settings: EngineSettings,
-    stop: &Arc<AtomicBool>,
-    open_log: impl Fn(LogMeta) -> Result<LogWriter, String>,
-    err: &mut E,
-) -> Result<u8, String> {
-    let pace = if args.unpaced {
-        Pace::Unpaced
-    } else {
-        Pace::RealTime
-    };
-    let source = FileSource::open(std::path::Path::new(path), args.looping, pace)
-        .map_err(|e| format!("{path}: {e}"))?;
-    let info = source.info().clone();
-    let selected = selected_channels(args.channels.as_deref(), info.channels)?;
-    let (writer, reader) = ring(info.channels, info.sample_rate as usize * 2);
-    let engine = Engine::new(
-        info.sample_rate,
-        info.channels,
-        info.integer_bits(),
-        settings,
-    )
-    .select(&selected);
-    let done = Arc::new(AtomicBool::new(false));
-    let analysis = spawn_analysis(reader, engine, Arc::clone(&done), 4096)
-        .map_err(|e| format!("cannot start the analysis thread: {e}"))?;
-    let player = source
-        .spawn(writer, Arc::clone(stop), Arc::clone(&done))
-        .map_err(|e| format!("cannot start the file source: {e}"))?;
-    let mut log = open_log(LogMeta {
-        host: "file".to_string(),
-        device: path.to_string(),
-        sample_rate_hz: info.sample_rate,
-        channels: selected,
-    })?;
-    let totals = pump(&analysis, &mut log, stop, |_, _| {});
-    let source_result = player.join();
-    let _ = analysis.join();
-    let code = finish(log, totals, info.sample_rate as f64, err);
-    if let Ok(Err(e)) = source_result {
-        let _ = writeln!(err, "brink log: {path}: {e}");
-        return Ok(crate::EXIT_FILE_ERROR);
-    }
-    Ok(code)
-}
-
-/// The channels `--channels` names (numbered from 1), or all of them.
-fn selected_channels(spec: Option<&str>, available: usize) -> Result<Vec<usize>, String> {
-    match spec {
-        Some(spec) => parse_channels(spec, available).map_err(|e| e.to_string()),
-        None => Ok((1..=available).collect()),
-    }
-}
-
-/// Full scale for over detection from the device's sample format ("i16", "i24", "u8", "f32"...).
-fn format_bits(format: &str) -> Option<u32> {
-    let digits = format
-        .strip_prefix('i')
-        .or_else(|| format.strip_prefix('u'))?;
-    digits.parse().ok()
-}
-
-/// How long callbacks may stop arriving before the input counts as lost.
-const HEARTBEAT: Duration = Duration::from_millis(1500);
-/// First and longest wait between attempts to reopen a lost input.
-const RETRY_FIRST: Duration = Duration::from_millis(250);
-const RETRY_MAX: Duration = Duration::from_secs(4);
-
-enum InputState {
-    Running {
-        /// Held to keep the stream alive: dropping it stops the stream.
-        _stream: Capture,
-        counters: Arc<Counters>,
-        callbacks: u64,
-        since: Instant,
-    },
-    Lost {
-        next_try: Instant,
-        wait: Duration,
-    },
-}
-
-fn run_device<E: Write>(
-    args: &LogArgs,
-    settings: EngineSettings,
-    stop: &Arc<AtomicBool>,
-    open_log: impl Fn(LogMeta) -> Result<LogWriter, String>,
-    err: &mut E,
-) -> Result<u8, String> {
-    let host = find_host(args.host.as_deref()).map_err(|e| e.to_string())?;
-    let host_name = host.id().name().to_lowercase();
-    let device = find_input(&host, args.input.as_deref()).map_err(|e| e.to_string())?;
-    let info = probe_input(&device, args.rate).map_err(|e| e.to_string())?;
-    let selected = selected_channels(args.channels.as_deref(), info.channels)?;
-    let rate = info.sample_rate;
-    let ring_frames = rate as usize * 2;
-    let (fault_tx, fault_rx) = crossbeam_channel::bounded(64);
-    let open = |device: &cpal::Device| -> Result<(Capture, AnalysisReader), String> {
-        let (writer, reader) = ring(info.channels, ring_frames);
-        let (capture, _) =
-            open_input(device, Some(rate), writer, fault_tx.clone()).map_err(|e| e.to_string())?;
-        capture.play().map_err(|e| e.to_string())?;
-        Ok((capture, reader))
-    };
-    let (capture, reader) = open(&device)?;
-    let counters = Arc::clone(reader.counters());
-    let engine = Engine::new(
-        rate,
-        info.channels,
-        format_bits(&info.sample_format),
-        settings,
-    )
-    .select(&selected);
-    let done = Arc::new(AtomicBool::new(false));
-    let position = Arc::new(AtomicU64::new(0));
-    let (replace_tx, replace_rx) = crossbeam_channel::bounded(1);
-    let analysis = spawn_analysis_with(
-        reader,
-        engine,
-        Feed {
-            source_done: Arc::clone(&done),
-            replacements: replace_rx,
-            position: Arc::clone(&position),
-        },
-        4096,
-    )
-    .map_err(|e| format!("cannot start the analysis thread: {e}"))?;
-    let mut log = open_log(LogMeta {
-        host: host_name,
-        device: info.device.clone(),
-        sample_rate_hz: rate,
-        channels: selected,
-    })?;
-
-    let t_s = || position.load(Ordering::Relaxed) as f64 / rate as f64;
-    let mut state = Some(InputState::Running {
-        _stream: capture,
-        counters,
-        callbacks: 0,
-        since: Instant::now(),
-    });
-    let selector = args.input.clone();
-    let host_sel = args.host.clone();
-    let totals = pump(&analysis, &mut log, stop, |log, stopping| {
-        if stopping {
-            // Our own shutdown: drop the stream first, then ignore whatever it reports.
-            state = None;
-            while fault_rx.try_recv().is_ok() {}
-            done.store(true, Ordering::Release);
-            return;
-        }
-        let now = Instant::now();
-        let mut lost: Option<String> = None;
-        while let Ok(fault) = fault_rx.try_recv() {
-            match fault {
-                CaptureFault::DeviceLost(reason) => lost = Some(reason),
-                CaptureFault::Other(msg) => {
-                    let _ = writeln!(std::io::stderr(), "brink log: input: {msg}");
-                }
-            }
-        }
-        match &mut state {
-            Some(InputState::Running {
-                counters,
-                callbacks,
-                since,
-                ..
-            }) => {
-                let seen = counters.callbacks.load(Ordering::Relaxed);
-                if seen != *callbacks {
-                    *callbacks = seen;
-                    *since = now;
-                } else if lost.is_none() && now.duration_since(*since) > HEARTBEAT {
-                    lost = Some("callbacks stopped arriving".to_string());
-                }
-                if let Some(reason) = lost {
-                    log.input_lost(t_s(), &reason);
-                    // Dropping the capture stops (what is left of) the stream.
-                    state = Some(InputState::Lost {
-                        next_try: now + RETRY_FIRST,
-                        wait: RETRY_FIRST,
-                    });
-                }
-            }
-            Some(InputState::Lost { next_try, wait }) if now >= *next_try => {
-                let reopened = find_host(host_sel.as_deref())
-                    .and_then(|h| find_input(&h, selector.as_deref()))
-                    .map_err(|e| e.to_string())
-                    .and_then(|d| open(&d));
-                match reopened {
-                    Ok((capture, reader)) => {
-                        let counters = Arc::clone(reader.counters());
-                        if replace_tx.send(reader).is_ok() {
-                            log.input_restored(t_s());
-                            state = Some(InputState::Running {
-                                _stream: capture,
-                                counters,
-                                callbacks: 0,
-                                since: now,
-                            });
-                        }
-                    }
-                    Err(_) => {
-                        let next = (*wait * 2).min(RETRY_MAX);
-                        *wait = next;
-                        *next_try = now + next;
-                    }
-                }
-            }
-            _ => {}
-        }
-    });
-    drop(state);
-    let _ = analysis.join();
-    Ok(finish(log, totals, rate as f64, err))
 }

@@ -4,14 +4,15 @@
 use std::ops::Range;
 
 use crate::dsp::clip::{ClipDetector, ClipKind, ClipRun, ClipSettings};
+use crate::dsp::imd::{self, ImdResult, ImdSettings};
 use crate::dsp::level::{amplitude_db, rms_dbfs, LevelStats};
 use crate::dsp::tone::{ToneAnalyzer, ToneReport, ToneSettings};
 use crate::dsp::truepeak::TruePeak;
 
 use super::episode::{Episode, EpisodeTracker};
 use super::report::{
-    ChannelReport, ClipEvent, ClipReport, DistortionReport, HarmonicReport, LevelReport,
-    SidedLevels, SliceChannel,
+    ChannelReport, ClipEvent, ClipReport, DistortionReport, HarmonicReport, ImdProductReport,
+    ImdReport, LevelReport, SidedLevels, SliceChannel,
 };
 
 /// Settings for one channel's analysis.
@@ -25,6 +26,8 @@ pub struct ChannelSettings {
     pub merge_gap_s: f64,
     /// Most episodes listed per channel; the rest are counted.
     pub max_events: usize,
+    /// Intermodulation analysis of the tone span (`scan --imd`); `None` leaves it out.
+    pub imd: Option<ImdSettings>,
 }
 
 impl Default for ChannelSettings {
@@ -34,6 +37,7 @@ impl Default for ChannelSettings {
             tone: ToneSettings::default(),
             merge_gap_s: 0.1,
             max_events: 10_000,
+            imd: None,
         }
     }
 }
@@ -152,6 +156,8 @@ pub struct ChannelAnalyzer {
     tone_buf: Vec<f32>,
     /// The span's analysis, done as soon as the span is complete.
     tone_result: Option<Option<ToneReport>>,
+    /// The span's IMD analysis (when asked for), done with the tone analysis.
+    imd_result: Option<Option<ImdResult>>,
     slices: Option<SliceState>,
     tone: ToneAnalyzer,
 }
@@ -184,6 +190,7 @@ impl ChannelAnalyzer {
             tone_buf: Vec::with_capacity(cap),
             tone_span,
             tone_result: None,
+            imd_result: None,
             slices: slice_len.filter(|&l| l > 0).map(|len| SliceState {
                 len,
                 levels: LevelStats::default(),
@@ -226,6 +233,9 @@ impl ChannelAnalyzer {
                 let rate = self.rate as f64;
                 let t = self.tone.analyze(&self.tone_buf, rate, &self.settings.tone);
                 self.tone_result = Some(t);
+                if let Some(s) = &self.settings.imd {
+                    self.imd_result = Some(imd::analyze(&self.tone_buf, rate, s));
+                }
                 self.tone_buf = Vec::new();
             }
         }
@@ -306,8 +316,14 @@ impl ChannelAnalyzer {
             Some(t) => t,
             None => self.tone.analyze(&self.tone_buf, rate, &self.settings.tone),
         };
+        let imd_result = match (self.imd_result.take(), &self.settings.imd) {
+            (Some(r), _) => r,
+            (None, Some(s)) => imd::analyze(&self.tone_buf, rate, s),
+            (None, None) => None,
+        };
         let span_start = self.tone_span.start.min(self.pos) as f64 / rate;
         let distortion = tone.map(|t| distortion_report(&t, span_start, rate));
+        let imd = imd_result.map(|r| imd_report(&r, span_start, rate));
         let peak = self.levels.peak as f64;
         let tp = self.tp.peak() as f64;
         let report = ChannelReport {
@@ -323,6 +339,7 @@ impl ChannelAnalyzer {
             },
             clipping: self.tally.report(rate),
             distortion,
+            imd,
         };
         let mut slices = self
             .slices
@@ -368,5 +385,37 @@ pub fn distortion_report(t: &ToneReport, span_start_s: f64, rate: f64) -> Distor
                 resolved: h.resolved,
             })
             .collect(),
+    }
+}
+
+/// Turn an IMD analysis into its report form.
+pub fn imd_report(r: &ImdResult, span_start_s: f64, rate: f64) -> ImdReport {
+    let re_ref = |a: f64| amplitude_db(a / r.reference_amplitude);
+    ImdReport {
+        method: r.method.name().to_string(),
+        f1_hz: r.f1_hz,
+        f1_dbfs: amplitude_db(r.f1_amplitude),
+        f2_hz: r.f2_hz,
+        f2_dbfs: amplitude_db(r.f2_amplitude),
+        reference: r.reference_name().to_string(),
+        reference_dbfs: amplitude_db(r.reference_amplitude),
+        imd_ratio: r.ratio,
+        imd_pct: 100.0 * r.ratio,
+        imd_db: amplitude_db(r.ratio),
+        d2_db: r.d2_ratio.and_then(amplitude_db),
+        d3_db: r.d3_ratio.and_then(amplitude_db),
+        products: r
+            .products
+            .iter()
+            .map(|p| ImdProductReport {
+                name: p.name.clone(),
+                order: p.order,
+                freq_hz: p.freq_hz,
+                level_dbfs: amplitude_db(p.amplitude),
+                level_dbr: re_ref(p.amplitude),
+            })
+            .collect(),
+        span_start_s,
+        span_end_s: span_start_s + r.samples as f64 / rate,
     }
 }

@@ -1,6 +1,7 @@
 //! Stateful analysers built on `dsp`: per-channel measurement and its reports.
 
 pub mod channel;
+pub mod character;
 pub mod episode;
 pub mod report;
 

@@ -41,6 +41,10 @@ pub struct ChannelReport {
     pub clipping: ClipReport,
     /// Distortion, when the channel carries a tone.
     pub distortion: Option<DistortionReport>,
+    /// Intermodulation distortion, only with `scan --imd`; the key is left out without the
+    /// flag and when the channel carries no tone pair to measure.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub imd: Option<ImdReport>,
 }
 
 /// Level readings.
@@ -157,6 +161,57 @@ pub struct HarmonicReport {
     pub phase_deg: f64,
     /// Stands at least the resolve margin above the noise floor.
     pub resolved: bool,
+}
+
+/// Intermodulation distortion of a two-tone stimulus (`scan --imd`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImdReport {
+    /// "smpte" (sidebands f2 ± n·f1) or "twin" (f2 − f1, 2f1 − f2, 2f2 − f1).
+    pub method: String,
+    /// Lower tone (Hz).
+    pub f1_hz: f64,
+    /// Its peak level (dBFS).
+    pub f1_dbfs: Option<f64>,
+    /// Higher tone (Hz).
+    pub f2_hz: f64,
+    /// Its peak level (dBFS).
+    pub f2_dbfs: Option<f64>,
+    /// What every ratio is referred to: "f2" (the high tone, SMPTE) or "f1+f2" (the sum of the
+    /// two tones' amplitudes, twin).
+    pub reference: String,
+    /// The reference's peak level (dBFS).
+    pub reference_dbfs: Option<f64>,
+    /// Total: √ΣA_p² over the reference, as a ratio.
+    pub imd_ratio: f64,
+    /// The same in %.
+    pub imd_pct: f64,
+    /// The same in dB; `None` when no product was measured above exact zero.
+    pub imd_db: Option<f64>,
+    /// Twin: the 2nd-order difference product f2 − f1 re the reference (dB); `None` for SMPTE.
+    pub d2_db: Option<f64>,
+    /// Twin: RSS of the 3rd-order products re the reference (dB); `None` for SMPTE.
+    pub d3_db: Option<f64>,
+    /// The products measured.
+    pub products: Vec<ImdProductReport>,
+    /// Start of the analysed span (s).
+    pub span_start_s: f64,
+    /// End of the analysed span (s).
+    pub span_end_s: f64,
+}
+
+/// One intermodulation product.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImdProductReport {
+    /// Which product: "f2-f1", "f2+f1", "f2-2f1", ... (SMPTE); "f2-f1", "2f1-f2", "2f2-f1" (twin).
+    pub name: String,
+    /// Order of the product.
+    pub order: u32,
+    /// Frequency (Hz).
+    pub freq_hz: f64,
+    /// Peak level (dBFS).
+    pub level_dbfs: Option<f64>,
+    /// Level relative to the reference (dB).
+    pub level_dbr: Option<f64>,
 }
 
 /// Readings of one slice of the timeline.

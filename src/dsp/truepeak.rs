@@ -129,6 +129,9 @@ pub struct TruePeak {
     max_abs: f32,
     /// Highest value since the last [`TruePeak::take_interval_peak`].
     interval: f32,
+    /// Highest value since the last [`TruePeak::take_frame_peak`] (a second, shorter interval
+    /// for meters on a screen).
+    frame: f32,
 }
 
 impl TruePeak {
@@ -153,6 +156,7 @@ impl TruePeak {
             filled: 0,
             max_abs: 0.0,
             interval: 0.0,
+            frame: 0.0,
         }
     }
 
@@ -175,11 +179,18 @@ impl TruePeak {
     pub fn clear_peak(&mut self) {
         self.max_abs = 0.0;
         self.interval = 0.0;
+        self.frame = 0.0;
     }
 
     /// The highest value since the previous call (or the start), and start a new interval.
     pub fn take_interval_peak(&mut self) -> f32 {
         std::mem::take(&mut self.interval)
+    }
+
+    /// The highest value since the previous call of this (or the start), and start a new
+    /// frame; independent of [`TruePeak::take_interval_peak`].
+    pub fn take_frame_peak(&mut self) -> f32 {
+        std::mem::take(&mut self.frame)
     }
 
     /// Feed samples.
@@ -203,6 +214,7 @@ impl TruePeak {
     fn process_block(&mut self, x: &[f32], raw_max: f32) {
         let h = TAPS - 1;
         self.interval = self.interval.max(raw_max);
+        self.frame = self.frame.max(raw_max);
         if self.phases.is_empty() {
             self.max_abs = self.max_abs.max(self.interval);
             return;
@@ -212,8 +224,9 @@ impl TruePeak {
         let hist_max = self.buf[h - self.filled.min(h)..h]
             .iter()
             .fold(0.0f32, |m, v| m.max(v.abs()));
-        // Exact skip: no output of this block can exceed bound_gain · max|x| over the spans.
-        if raw_max.max(hist_max) * self.bound_gain > self.interval {
+        // Exact skip: no output of this block can exceed bound_gain · max|x| over the spans, so
+        // when that stays under both running maxima the block cannot change either.
+        if raw_max.max(hist_max) * self.bound_gain > self.interval.min(self.frame) {
             // Output j (0-based over the block) uses buf[j .. j + TAPS] ending at sample j + h.
             // It is valid when all of its TAPS samples are real: j + h − (TAPS−1) ≥ h − filled,
             // i.e. j ≥ h − filled.
@@ -229,6 +242,7 @@ impl TruePeak {
                         .fold(0.0f32, f32::max),
                 };
                 self.interval = self.interval.max(best);
+                self.frame = self.frame.max(best);
             }
         }
         self.max_abs = self.max_abs.max(self.interval);

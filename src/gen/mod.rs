@@ -33,7 +33,7 @@ pub use wav_out::{write_wav, SampleFormat, WriteOptions, WriteStats};
 pub const RECIPE_HELP: &str = "\
 Each channel is one recipe: KIND[:FREQ][@LEVEL][,key=value...]
 LEVEL is the peak of the finished waveform in dBFS (default -20), before noise= and dc=.
-FREQ defaults to 997 Hz (twin: 19000+20000). Numbers are plain decimals.
+FREQ defaults to 997 Hz (twin: 19000+20000, smpte: 60+7000). Numbers are plain decimals.
 Kinds:
   sine:997@-20      sine. LEVEL may sweep over the active span:
                     @-40..-6 ramps (in dB), @-40..-6/8 steps in 8 equal steps
@@ -51,8 +51,11 @@ Kinds:
                     y = tanh(g(x+bias)) - tanh(g*bias) on a unit sine x,
                     g = 10^(drive/20), bias -1..1; bias=0 gives odd harmonics only
   twin:19000+20000@-6,ratio=1
-                    two sines, amplitudes ratio:1, sum of amplitudes = LEVEL
-                    (twin:60+7000,ratio=4 is the 4:1 intermodulation stimulus)
+                    two sines, amplitudes ratio:1 (first over second), sum of
+                    amplitudes = LEVEL: the twin-tone intermodulation stimulus
+  smpte:60+7000@-6,ratio=4
+                    twin with the SMPTE RP120 defaults, 60 Hz + 7 kHz at 4:1
+                    (smpte:250+8000 for the DIN pair); shown in the twin form
   noise@-60         Gaussian white noise; LEVEL is RMS after AES17,
                     20*log10(sqrt(2)*rms), so it matches a sine of that peak
   silence           nothing (add dc= or noise=)
@@ -246,8 +249,9 @@ const MAX_RENDERED_SAMPLES: usize = 1 << 28;
 /// Stream numbers for [`rng::derive_seed`]: channel `i` renders with stream `i`, dither uses its own.
 const DITHER_STREAM: u64 = 0xD1_7E_E5;
 
-/// `brink gen`: render every recipe, write the WAV file, print one summary line per channel.
-pub fn run(args: &GenArgs, out: &mut dyn Write) -> Result<(), GenError> {
+/// Render every recipe of `args` (one per channel) in f64, full scale ±1, checking the rate and
+/// length limits first. Returns the recipes parsed and the channels.
+fn render_checked(args: &GenArgs) -> Result<(Vec<Recipe>, Vec<Vec<f64>>), GenError> {
     if !(RATE_RANGE.0..=RATE_RANGE.1).contains(&args.rate) {
         return Err(GenError::Rate(args.rate));
     }
@@ -296,6 +300,18 @@ pub fn run(args: &GenArgs, out: &mut dyn Write) -> Result<(), GenError> {
                 .map_err(in_channel(i))
         })
         .collect::<Result<Vec<_>, _>>()?;
+    Ok((recipes, channels))
+}
+
+/// Render every recipe of `args` (one per channel) in f64, full scale ±1, without writing a file
+/// (the demo plays them straight into the live pipeline).
+pub fn render_channels(args: &GenArgs) -> Result<Vec<Vec<f64>>, GenError> {
+    render_checked(args).map(|(_, channels)| channels)
+}
+
+/// `brink gen`: render every recipe, write the WAV file, print one summary line per channel.
+pub fn run(args: &GenArgs, out: &mut dyn Write) -> Result<(), GenError> {
+    let (recipes, channels) = render_checked(args)?;
     let opts = WriteOptions {
         format: args.bits,
         dither: args.dither,

@@ -4,7 +4,7 @@
 //!
 //! ```text
 //! recipe := KIND [ ":" FREQ ] [ "@" LEVEL ] { "," KEY "=" VALUE }
-//! FREQ   := number | number "+" number        (the pair only for `twin`)
+//! FREQ   := number | number "+" number        (the pair only for `twin` and `smpte`)
 //! LEVEL  := sweep                              (a range only for `sine`)
 //! sweep  := number | number ".." number | number ".." number "/" STEPS
 //! ```
@@ -22,6 +22,10 @@ pub const DEFAULT_LEVEL_DB: f64 = -20.0;
 pub const DEFAULT_FREQ_HZ: f64 = 997.0;
 /// Default tone pair of `twin` (the 19 kHz + 20 kHz twin-tone test).
 pub const DEFAULT_TWIN_HZ: (f64, f64) = (19000.0, 20000.0);
+/// Default tone pair of `smpte`: 60 Hz + 7 kHz (SMPTE RP120).
+pub const DEFAULT_SMPTE_HZ: (f64, f64) = (60.0, 7000.0);
+/// Default amplitude ratio of `smpte`, low tone over high tone: 4:1 (SMPTE RP120).
+pub const DEFAULT_SMPTE_RATIO: f64 = 4.0;
 /// Default drive of `clip` and `soft`, dB.
 pub const DEFAULT_DRIVE_DB: f64 = 6.0;
 /// Highest harmonic order `harmonics` accepts.
@@ -51,6 +55,8 @@ pub enum Kind {
     Soft,
     /// Two sines.
     Twin,
+    /// Two sines with the SMPTE RP120 defaults (60 Hz + 7 kHz at 4:1); renders as `twin`.
+    Smpte,
     /// Gaussian white noise.
     Noise,
     /// Nothing (useful with `dc=` or `noise=`).
@@ -59,7 +65,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind.
-    pub const ALL: [Kind; 10] = [
+    pub const ALL: [Kind; 11] = [
         Kind::Sine,
         Kind::Harmonics,
         Kind::Square,
@@ -68,6 +74,7 @@ impl Kind {
         Kind::Clip,
         Kind::Soft,
         Kind::Twin,
+        Kind::Smpte,
         Kind::Noise,
         Kind::Silence,
     ];
@@ -83,6 +90,7 @@ impl Kind {
             Kind::Clip => "clip",
             Kind::Soft => "soft",
             Kind::Twin => "twin",
+            Kind::Smpte => "smpte",
             Kind::Noise => "noise",
             Kind::Silence => "silence",
         }
@@ -111,7 +119,7 @@ impl Kind {
             Kind::Soft => &[
                 "drive", "bias", "noise", "dc", "phase", "start", "stop", "fade",
             ],
-            Kind::Twin => &["ratio", "noise", "dc", "phase", "start", "stop", "fade"],
+            Kind::Twin | Kind::Smpte => &["ratio", "noise", "dc", "phase", "start", "stop", "fade"],
             Kind::Noise => &["dc", "start", "stop", "fade"],
             Kind::Silence => &["noise", "dc", "start", "stop", "fade"],
         }
@@ -281,6 +289,7 @@ pub enum Shape {
         bias: f64,
     },
     /// `twin:F1+F2@LEVEL,ratio=R`: `A1·sin(ω1 t) + A2·sin(ω2 t)`, `A1:A2 = R:1`, `A1 + A2` = peak.
+    /// `smpte` parses to this shape too, with its own defaults.
     Twin {
         /// First tone, Hz.
         f1: f64,
@@ -486,7 +495,7 @@ impl Parser<'_> {
             (Kind::Noise | Kind::Silence, Some(_)) => {
                 return Err(self.invalid(format!("{kind} takes no frequency")));
             }
-            (Kind::Twin, _) => None,
+            (Kind::Twin | Kind::Smpte, _) => None,
             (_, Some(f)) => Some(self.positive("frequency", f)?),
             (_, None) => Some(DEFAULT_FREQ_HZ),
         };
@@ -588,13 +597,19 @@ impl Parser<'_> {
                     None => 0.0,
                 },
             },
-            Kind::Twin => {
+            Kind::Twin | Kind::Smpte => {
+                let (default_hz, default_ratio) = if kind == Kind::Smpte {
+                    (DEFAULT_SMPTE_HZ, DEFAULT_SMPTE_RATIO)
+                } else {
+                    (DEFAULT_TWIN_HZ, 1.0)
+                };
                 let (f1, f2) = match freq_txt {
-                    None => DEFAULT_TWIN_HZ,
+                    None => default_hz,
                     Some(pair) => {
                         let (a, b) = pair.split_once('+').ok_or_else(|| {
                             self.invalid(format!(
-                                "twin needs two frequencies joined by '+', e.g. twin:19000+20000, got '{pair}'"
+                                "{kind} needs two frequencies joined by '+', e.g. {kind}:{}+{}, got '{pair}'",
+                                default_hz.0, default_hz.1
                             ))
                         })?;
                         (
@@ -610,7 +625,7 @@ impl Parser<'_> {
                     ratio: get("ratio")
                         .map(|v| self.positive("ratio", v))
                         .transpose()?
-                        .unwrap_or(1.0),
+                        .unwrap_or(default_ratio),
                 }
             }
             Kind::Noise => Shape::Noise { level },
@@ -824,6 +839,37 @@ mod tests {
             parse_recipe("noise@-60").unwrap().shape,
             Shape::Noise { level: -60.0 }
         );
+        // SMPTE RP120 defaults: 60 Hz + 7 kHz at 4:1 (reference-values.md §7); the level is
+        // the combined peak, as for twin.
+        assert_eq!(
+            parse_recipe("smpte@-6").unwrap().shape,
+            Shape::Twin {
+                f1: 60.0,
+                f2: 7000.0,
+                level: -6.0,
+                ratio: 4.0
+            }
+        );
+        // The DIN variant (250 Hz + 8 kHz, reference-values.md §7) by giving the pair.
+        assert_eq!(
+            parse_recipe("smpte:250+8000,ratio=4").unwrap().shape,
+            Shape::Twin {
+                f1: 250.0,
+                f2: 8000.0,
+                level: DEFAULT_LEVEL_DB,
+                ratio: 4.0
+            }
+        );
+        // twin keeps its own defaults: 19 kHz + 20 kHz at 1:1.
+        assert_eq!(
+            parse_recipe("twin").unwrap().shape,
+            Shape::Twin {
+                f1: 19000.0,
+                f2: 20000.0,
+                level: DEFAULT_LEVEL_DB,
+                ratio: 1.0
+            }
+        );
         assert_eq!(parse_recipe("silence").unwrap().shape, Shape::Silence);
     }
 
@@ -919,7 +965,7 @@ mod tests {
         assert_eq!(
             err("sqare:100"),
             "unknown signal kind 'sqare' (known: sine, harmonics, square, triangle, saw, clip, \
-             soft, twin, noise, silence)"
+             soft, twin, smpte, noise, silence)"
         );
         assert_eq!(err("sine:997@-6x"), "bad level '-6x' in 'sine:997@-6x'");
         assert_eq!(err("sine:abc"), "bad frequency 'abc' in 'sine:abc'");
@@ -990,6 +1036,18 @@ mod tests {
              'twin:19000@-6'"
         );
         assert_eq!(
+            err("smpte:60"),
+            "smpte needs two frequencies joined by '+', e.g. smpte:60+7000, got '60' in 'smpte:60'"
+        );
+        assert_eq!(
+            err("smpte,ratio=0"),
+            "ratio must be above zero, got 0 in 'smpte,ratio=0'"
+        );
+        assert_eq!(
+            err("smpte,drive=3"),
+            "unknown key 'drive' for smpte (allowed: ratio, noise, dc, phase, start, stop, fade)"
+        );
+        assert_eq!(
             err("noise@-60,phase=90"),
             "unknown key 'phase' for noise (allowed: dc, start, stop, fade)"
         );
@@ -1017,6 +1075,10 @@ mod tests {
                 "soft:997@-6,drive=6,bias=0.3",
             ),
             ("twin", "twin:19000+20000@-20,ratio=1"),
+            // smpte is twin with the SMPTE RP120 defaults; it prints in the twin form.
+            ("smpte", "twin:60+7000@-20,ratio=4"),
+            ("smpte:250+8000@-6", "twin:250+8000@-6,ratio=4"),
+            ("smpte,ratio=10", "twin:60+7000@-20,ratio=10"),
             ("noise@-60", "noise@-60"),
             ("silence,dc=0.5", "silence,dc=0.5"),
             (

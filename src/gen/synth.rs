@@ -777,6 +777,41 @@ mod tests {
         assert!(peak(&y) <= a);
     }
 
+    #[test]
+    fn smpte_and_twin_defaults_render_their_tone_pairs() {
+        // Projections over 1 s at 48 kHz: 60, 7000, 19000 and 20000 Hz all complete whole
+        // periods, so each projection reads its tone alone, exactly.
+        let fs = 48000;
+        let a = db_to_amp(-6.0);
+        // smpte: 60 Hz + 7 kHz at 4:1, combined peak = LEVEL (SMPTE RP120, reference-values.md §7).
+        let y = rend("smpte@-6", fs, 48000);
+        let a1 = harmonic_amp(&y, omega(60.0, fs), 1);
+        let a2 = harmonic_amp(&y, omega(7000.0, fs), 1);
+        assert!((a1 - 0.8 * a).abs() < 1e-12, "{a1}");
+        assert!((a2 - 0.2 * a).abs() < 1e-12, "{a2}");
+        // Nothing else: the residual after both tones is zero (calc).
+        let (c1, s1) = project(&y, omega(60.0, fs), 1);
+        let (c2, s2) = project(&y, omega(7000.0, fs), 1);
+        let resid = y.iter().enumerate().fold(0.0f64, |m, (n, v)| {
+            let (w1, w2) = (omega(60.0, fs) * n as f64, omega(7000.0, fs) * n as f64);
+            let model = c1 * w1.cos() + s1 * w1.sin() + c2 * w2.cos() + s2 * w2.sin();
+            m.max((v - model).abs())
+        });
+        assert!(resid < 1e-12, "{resid}");
+        // The sum of two sines at phase 0 comes within a hair of A1 + A2 at 48 kHz.
+        assert!(peak(&y) <= a && peak(&y) > 0.99 * a, "{}", peak(&y));
+        // ratio= overrides the default: 10:1 gives 10/11 and 1/11 of the level.
+        let y = rend("smpte@-6,ratio=10", fs, 48000);
+        let a1 = harmonic_amp(&y, omega(60.0, fs), 1);
+        assert!((a1 - a * 10.0 / 11.0).abs() < 1e-12, "{a1}");
+        // twin: 19 kHz + 20 kHz at 1:1 (twin-tone test, reference-values.md §7).
+        let y = rend("twin@-6", fs, 48000);
+        let a1 = harmonic_amp(&y, omega(19000.0, fs), 1);
+        let a2 = harmonic_amp(&y, omega(20000.0, fs), 1);
+        assert!((a1 - 0.5 * a).abs() < 1e-12, "{a1}");
+        assert!((a2 - 0.5 * a).abs() < 1e-12, "{a2}");
+    }
+
     fn aes17_rms_db(y: &[f64]) -> f64 {
         let rms = (y.iter().map(|v| v * v).sum::<f64>() / y.len() as f64).sqrt();
         20.0 * (SQRT_2 * rms).log10()

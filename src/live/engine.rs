@@ -8,7 +8,9 @@
 //! gap. Several times a second the last `tone_window_s` of each channel is analysed for its tone;
 //! the first time THD passes the onset threshold, [`LiveEvent::Onset`] reports the fundamental
 //! level at which it happened (interpolated between the two analyses either side). Every
-//! `summary_every_s`, a [`LiveEvent::Summary`] carries interval maxima and counts.
+//! `summary_every_s`, a [`LiveEvent::Summary`] carries interval maxima and counts. For a screen,
+//! `meter_every_s` adds [`LiveEvent::Meters`] (every meter ballistics' needle, and the peaks since
+//! the last frame) and `tone_events` a [`LiveEvent::Tone`] per analysis.
 
 use std::collections::BTreeMap;
 
@@ -17,6 +19,7 @@ use serde::Serialize;
 use crate::analysis::episode::EpisodeTracker;
 use crate::analysis::report::ClipEvent;
 use crate::analysis::ChannelSettings;
+use crate::dsp::ballistics::{Ballistics, Meter};
 use crate::dsp::clip::{ClipDetector, ClipKind};
 use crate::dsp::level::{amplitude_db, rms_dbfs, LevelStats};
 use crate::dsp::tone::{ToneAnalyzer, ToneReport};
@@ -35,6 +38,10 @@ pub struct EngineSettings {
     pub summary_every_s: Option<f64>,
     /// THD (%) whose first crossing is reported as the clipping onset.
     pub onset_thd_pct: f64,
+    /// Interval of meter frames (s); `None` for none (the logger needs none).
+    pub meter_every_s: Option<f64>,
+    /// Publish every tone analysis as it is made.
+    pub tone_events: bool,
 }
 
 impl Default for EngineSettings {
@@ -45,6 +52,8 @@ impl Default for EngineSettings {
             tone_every_s: 0.25,
             summary_every_s: Some(1.0),
             onset_thd_pct: 1.0,
+            meter_every_s: None,
+            tone_events: false,
         }
     }
 }
@@ -74,8 +83,30 @@ pub struct ChannelSummary {
     pub thd_n_db: Option<f64>,
     /// Odd/even balance (dB).
     pub odd_even_db: Option<f64>,
+    /// SINAD (dB).
+    pub sinad_db: Option<f64>,
+    /// Harmonic fall-off (dB per octave of order).
+    pub falloff_db_per_octave: Option<f64>,
     /// Harmonic levels by order (dBc).
     pub harmonics_dbc: BTreeMap<String, Option<f64>>,
+    /// Harmonic phases by order, relative to the fundamental (degrees, sine convention).
+    pub harmonics_phase_deg: BTreeMap<String, f64>,
+    /// Noise floor of the tone analysis (dBc in one harmonic's bandwidth).
+    pub noise_floor_dbc: Option<f64>,
+}
+
+/// One channel's meters at a meter frame.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MeterFrame {
+    /// Channel number, from 1.
+    pub channel: usize,
+    /// Highest sample magnitude since the previous frame (full scale = 1).
+    pub sample_peak: f64,
+    /// Highest true peak since the previous frame (full scale = 1).
+    pub true_peak: f64,
+    /// Each ballistics' reading now, in the order of [`Ballistics::ALL`] (full scale = 1; a
+    /// steady sine reads its peak on all of them).
+    pub readings: [f64; 4],
 }
 
 /// The first crossing of the onset threshold on a channel.
@@ -121,6 +152,22 @@ pub enum LiveEvent {
     },
     /// THD passed the onset threshold for the first time.
     Onset(Onset),
+    /// Meter frame (with `meter_every_s`).
+    Meters {
+        /// Stream time (s).
+        t_s: f64,
+        /// Per channel.
+        channels: Vec<MeterFrame>,
+    },
+    /// A tone analysis (with `tone_events`); `report` is `None` when the channel carries no tone.
+    Tone {
+        /// Channel number, from 1.
+        channel: usize,
+        /// Stream time at the end of the analysed record (s).
+        t_s: f64,
+        /// The analysis.
+        report: Option<Box<ToneReport>>,
+    },
     /// Frames were lost before this point; state spanning samples was reset.
     Gap {
         /// Stream time of the gap (s).
@@ -151,6 +198,9 @@ struct Lane {
     latest: Option<ToneReport>,
     /// Fundamental of the lane's last tone analysis (starts the next fit).
     last_f0: Option<f64>,
+    /// Meters of every ballistics, and the peaks since the last meter frame.
+    meters: [Meter; 4],
+    frame_peak: f32,
     /// (THD %, fundamental dBFS) of the previous analysis, for the onset interpolation.
     previous: Option<(f64, Option<f64>)>,
     onset_seen: bool,
@@ -171,6 +221,8 @@ pub struct Engine {
     next_tone: u64,
     summary_every: Option<u64>,
     next_summary: u64,
+    meter_every: Option<u64>,
+    next_meter: u64,
     plane: Vec<f32>,
 }
 
@@ -215,12 +267,17 @@ impl Engine {
                 tone_offset: 0,
                 latest: None,
                 last_f0: None,
+                meters: Ballistics::ALL.map(|b| Meter::new(b, r)),
+                frame_peak: 0.0,
                 previous: None,
                 onset_seen: false,
             })
             .collect();
         let summary_every = settings
             .summary_every_s
+            .map(|s| ((s * r).round() as u64).max(1));
+        let meter_every = settings
+            .meter_every_s
             .map(|s| ((s * r).round() as u64).max(1));
         let mut engine = Engine {
             rate,
@@ -232,6 +289,8 @@ impl Engine {
             next_tone: tone_every,
             next_summary: summary_every.unwrap_or(u64::MAX),
             summary_every,
+            next_meter: meter_every.unwrap_or(u64::MAX),
+            meter_every,
             settings,
             plane: Vec::new(),
         };
@@ -296,7 +355,7 @@ impl Engine {
         let mut rest = interleaved;
         while rest.len() >= ch {
             let frames = rest.len() / ch;
-            let next_due = self.next_tone.min(self.next_summary);
+            let next_due = self.next_tone.min(self.next_summary).min(self.next_meter);
             let take = ((next_due - self.pos) as usize).min(frames).max(1);
             let (now, later) = rest.split_at(take * ch);
             self.process_span(now, out);
@@ -308,7 +367,28 @@ impl Engine {
                 self.summary(out);
                 self.next_summary = self.pos + self.summary_every.unwrap_or(u64::MAX - self.pos);
             }
+            if self.pos >= self.next_meter {
+                self.meter_frame(out);
+                self.next_meter = self.pos + self.meter_every.unwrap_or(u64::MAX - self.pos);
+            }
         }
+    }
+
+    fn meter_frame(&mut self, out: &mut impl FnMut(LiveEvent)) {
+        let channels = self
+            .lanes
+            .iter_mut()
+            .map(|lane| MeterFrame {
+                channel: lane.channel,
+                sample_peak: std::mem::take(&mut lane.frame_peak) as f64,
+                true_peak: lane.tp.take_frame_peak() as f64,
+                readings: std::array::from_fn(|i| lane.meters[i].reading()),
+            })
+            .collect();
+        out(LiveEvent::Meters {
+            t_s: self.t(self.pos),
+            channels,
+        });
     }
 
     fn process_span(&mut self, interleaved: &[f32], out: &mut impl FnMut(LiveEvent)) {
@@ -323,6 +403,12 @@ impl Engine {
                 .extend(interleaved.chunks_exact(ch).map(|f| f[c]));
             let peak = lane.levels.process(&self.plane);
             lane.tp.process_with_peak(&self.plane, peak);
+            if self.meter_every.is_some() {
+                lane.frame_peak = lane.frame_peak.max(peak);
+                for m in &mut lane.meters {
+                    m.process(&self.plane);
+                }
+            }
             let (episodes, overs, flats, channel) = (
                 &mut lane.episodes,
                 &mut lane.overs,
@@ -413,6 +499,13 @@ impl Engine {
                 lane.previous = Some((thd, level));
             }
             lane.last_f0 = report.as_ref().map(|r| r.fundamental_hz);
+            if self.settings.tone_events {
+                out(LiveEvent::Tone {
+                    channel: lane.channel,
+                    t_s,
+                    report: report.clone().map(Box::new),
+                });
+            }
             lane.latest = report;
         }
         self.next_tone = self
@@ -446,6 +539,8 @@ impl Engine {
                     thd_pct: tone.as_ref().and_then(|t| t.thd_ratio).map(|t| 100.0 * t),
                     thd_n_db: tone.as_ref().and_then(|t| amplitude_db(t.thd_n_ratio)),
                     odd_even_db: tone.as_ref().and_then(|t| t.odd_even_db),
+                    sinad_db: tone.as_ref().map(|t| t.sinad_db).filter(|v| v.is_finite()),
+                    falloff_db_per_octave: tone.as_ref().and_then(|t| t.falloff_db_per_octave),
                     harmonics_dbc: tone
                         .as_ref()
                         .map(|t| {
@@ -455,6 +550,16 @@ impl Engine {
                                 .collect()
                         })
                         .unwrap_or_default(),
+                    harmonics_phase_deg: tone
+                        .as_ref()
+                        .map(|t| {
+                            t.harmonics
+                                .iter()
+                                .map(|h| (h.order.to_string(), h.phase_deg))
+                                .collect()
+                        })
+                        .unwrap_or_default(),
+                    noise_floor_dbc: tone.as_ref().and_then(|t| t.noise_floor_dbc),
                 };
                 lane.levels = LevelStats::default();
                 s

@@ -6,4 +6,5 @@ pub mod devices;
 pub mod engine;
 pub mod ring;
 pub mod run;
+pub mod session;
 pub mod source;

@@ -6,7 +6,7 @@
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
 use std::thread::JoinHandle;
-use std::time::Duration;
+use std::time::{Duration, Instant};
 
 use crossbeam_channel::{Receiver, Sender, TrySendError};
 
@@ -45,6 +45,8 @@ pub struct Analysis {
     stop: Arc<AtomicBool>,
     handle: Option<JoinHandle<Totals>>,
     dropped_events: Arc<AtomicU64>,
+    load: Arc<AtomicU64>,
+    position: Arc<AtomicU64>,
 }
 
 impl Analysis {
@@ -56,6 +58,16 @@ impl Analysis {
     /// Events missed so far because the receiver was slow.
     pub fn dropped_events(&self) -> u64 {
         self.dropped_events.load(Ordering::Relaxed)
+    }
+
+    /// Where the analysis has got to, in frames of stream time.
+    pub fn position(&self) -> Arc<AtomicU64> {
+        Arc::clone(&self.position)
+    }
+
+    /// The share of the last second of wall time the analysis thread spent analysing (0..1).
+    pub fn load(&self) -> f64 {
+        f64::from_bits(self.load.load(Ordering::Relaxed))
     }
 
     /// Wait for the thread and return its totals.
@@ -111,15 +123,31 @@ pub fn spawn_analysis_with(
     let (tx, rx) = crossbeam_channel::bounded(capacity.max(1));
     let stop = Arc::new(AtomicBool::new(false));
     let dropped_events = Arc::new(AtomicU64::new(0));
-    let (stop2, dropped2) = (Arc::clone(&stop), Arc::clone(&dropped_events));
+    let load = Arc::new(AtomicU64::new(0f64.to_bits()));
+    let position = Arc::clone(&feed.position);
+    let (stop2, dropped2, load2) = (
+        Arc::clone(&stop),
+        Arc::clone(&dropped_events),
+        Arc::clone(&load),
+    );
     let handle = std::thread::Builder::new()
         .name("brink-analysis".into())
-        .spawn(move || analysis_loop(&mut reader, &mut engine, &feed, &stop2, &tx, &dropped2))?;
+        .spawn(move || {
+            let shared = Shared {
+                stop: &stop2,
+                tx: &tx,
+                dropped_events: &dropped2,
+                load: &load2,
+            };
+            analysis_loop(&mut reader, &mut engine, &feed, &shared)
+        })?;
     Ok(Analysis {
         events: rx,
         stop,
         handle: Some(handle),
         dropped_events,
+        load,
+        position,
     })
 }
 
@@ -132,14 +160,52 @@ fn publish(tx: &Sender<Published>, dropped: &AtomicU64, p: Published) {
     }
 }
 
+/// What the analysis thread shares with its handle.
+struct Shared<'a> {
+    stop: &'a AtomicBool,
+    tx: &'a Sender<Published>,
+    dropped_events: &'a AtomicU64,
+    /// f64 bits: busy share of the last second.
+    load: &'a AtomicU64,
+}
+
+/// Busy time over wall time, published once a second.
+struct LoadMeter<'a> {
+    out: &'a AtomicU64,
+    since: Instant,
+    busy: Duration,
+}
+
+impl LoadMeter<'_> {
+    fn add(&mut self, busy: Duration) {
+        self.busy += busy;
+        let wall = self.since.elapsed();
+        if wall >= Duration::from_secs(1) {
+            let share = self.busy.as_secs_f64() / wall.as_secs_f64();
+            self.out.store(share.to_bits(), Ordering::Relaxed);
+            self.since = Instant::now();
+            self.busy = Duration::ZERO;
+        }
+    }
+}
+
 fn analysis_loop(
     reader: &mut AnalysisReader,
     engine: &mut Engine,
     feed: &Feed,
-    stop: &AtomicBool,
-    tx: &Sender<Published>,
-    dropped_events: &AtomicU64,
+    shared: &Shared<'_>,
 ) -> Totals {
+    let Shared {
+        stop,
+        tx,
+        dropped_events,
+        load,
+    } = *shared;
+    let mut meter = LoadMeter {
+        out: load,
+        since: Instant::now(),
+        busy: Duration::ZERO,
+    };
     // Blocks of 10 ms, cut from the ring whatever the source's write sizes.
     let block = ((engine.rate() as usize) / 100).max(1);
     let ch = engine.channels().max(1);
@@ -153,8 +219,10 @@ fn analysis_loop(
         }
         match reader.read_block(&mut buf) {
             Read::Frames(n) => {
+                let t0 = Instant::now();
                 engine.process(&buf[..n * ch], &mut emit);
                 feed.position.store(engine.position(), Ordering::Relaxed);
+                meter.add(t0.elapsed());
             }
             Read::Gap { dropped } => engine.gap(dropped, &mut emit),
             Read::Waiting => {
@@ -194,6 +262,7 @@ fn analysis_loop(
                     }
                 }
                 std::thread::sleep(Duration::from_millis(2));
+                meter.add(Duration::ZERO);
             }
         }
     }

@@ -66,35 +66,115 @@ impl FileSource {
     }
 
     fn play(&self, writer: &mut CaptureWriter, stop: &AtomicBool) -> Result<(), WavError> {
-        let rate = self.info.sample_rate as f64;
-        // 10 ms per write, like a typical callback.
-        let block = ((rate / 100.0).round() as usize).max(1);
-        let mut buf = Vec::with_capacity(block * self.info.channels);
-        let started = Instant::now();
-        let mut played: u64 = 0;
+        let mut clock = Pacer::new(self.info.sample_rate, self.pace);
+        let mut buf = Vec::with_capacity(clock.block * self.info.channels);
         loop {
             let mut src = WavSource::open(&self.path)?;
             loop {
                 if stop.load(Ordering::Relaxed) {
                     return Ok(());
                 }
-                let got = src.read_frames(&mut buf, block)?;
+                let got = src.read_frames(&mut buf, clock.block)?;
                 if got == 0 {
                     break;
                 }
-                if self.pace == Pace::RealTime {
-                    let due = started + Duration::from_secs_f64(played as f64 / rate);
-                    let now = Instant::now();
-                    if due > now {
-                        std::thread::sleep(due - now);
-                    }
-                }
+                clock.wait();
                 writer.write(&buf);
-                played += got as u64;
+                clock.played(got);
             }
             if !self.looping {
                 return Ok(());
             }
         }
+    }
+}
+
+/// Real-time pacing in 10 ms writes, like a typical callback.
+struct Pacer {
+    rate: f64,
+    pace: Pace,
+    block: usize,
+    started: Instant,
+    played: u64,
+}
+
+impl Pacer {
+    fn new(rate: u32, pace: Pace) -> Self {
+        let rate = f64::from(rate.max(1));
+        Pacer {
+            rate,
+            pace,
+            block: ((rate / 100.0).round() as usize).max(1),
+            started: Instant::now(),
+            played: 0,
+        }
+    }
+
+    /// Sleep until the next write is due (real time only).
+    fn wait(&self) {
+        if self.pace == Pace::RealTime {
+            let due = self.started + Duration::from_secs_f64(self.played as f64 / self.rate);
+            let now = Instant::now();
+            if due > now {
+                std::thread::sleep(due - now);
+            }
+        }
+    }
+
+    fn played(&mut self, frames: usize) {
+        self.played += frames as u64;
+    }
+}
+
+/// Interleaved samples in memory as a live source (the demo): played at real speed, looping or
+/// once, into the ring.
+#[derive(Debug, Clone)]
+pub struct MemorySource {
+    rate: u32,
+    channels: usize,
+    samples: Arc<Vec<f32>>,
+    looping: bool,
+}
+
+impl MemorySource {
+    /// `samples` interleaved with `channels` per frame at `rate`.
+    pub fn new(rate: u32, channels: usize, samples: Arc<Vec<f32>>, looping: bool) -> Self {
+        MemorySource {
+            rate,
+            channels: channels.max(1),
+            samples,
+            looping,
+        }
+    }
+
+    /// Play on a new thread into `writer` until the end (or forever when looping) or until
+    /// `stop` is set; `done` is raised when the thread finishes.
+    pub fn spawn(
+        self,
+        mut writer: CaptureWriter,
+        stop: Arc<AtomicBool>,
+        done: Arc<AtomicBool>,
+    ) -> std::io::Result<JoinHandle<Result<(), WavError>>> {
+        std::thread::Builder::new()
+            .name("brink-memory-source".into())
+            .spawn(move || {
+                let mut clock = Pacer::new(self.rate, Pace::RealTime);
+                let step = clock.block * self.channels;
+                'outer: loop {
+                    for chunk in self.samples.chunks(step) {
+                        if stop.load(Ordering::Relaxed) {
+                            break 'outer;
+                        }
+                        clock.wait();
+                        writer.write(chunk);
+                        clock.played(chunk.len() / self.channels);
+                    }
+                    if !self.looping || self.samples.is_empty() {
+                        break;
+                    }
+                }
+                done.store(true, Ordering::Release);
+                Ok(())
+            })
     }
 }

@@ -942,7 +942,8 @@ impl LogWriter {
                     channels,
                 });
             }
-            LiveEvent::ClipStarted { .. } => {}
+            // Screens' fare: a log has its summaries.
+            LiveEvent::ClipStarted { .. } | LiveEvent::Meters { .. } | LiveEvent::Tone { .. } => {}
             LiveEvent::Clip { channel, event } => {
                 self.totals.clip_events += 1;
                 self.emit(&Record::Clip {
@@ -1198,6 +1199,10 @@ mod tests {
             thd_pct: Some(0.25),
             thd_n_db: Some(-50.0),
             odd_even_db: None,
+            sinad_db: None,
+            falloff_db_per_octave: None,
+            harmonics_phase_deg: BTreeMap::new(),
+            noise_floor_dbc: None,
             harmonics_dbc: harmonics,
         }
     }

@@ -201,6 +201,48 @@ pub fn write_scan<W: Write>(w: &mut W, r: &ScanReport) -> io::Result<()> {
         }
     }
 
+    // Intermodulation: only with `scan --imd`, for channels carrying a tone pair.
+    let imd: Vec<&ChannelReport> = r.channels.iter().filter(|c| c.imd.is_some()).collect();
+    if !imd.is_empty() {
+        writeln!(w)?;
+        writeln!(
+            w,
+            "Intermodulation (smpte: sidebands f2 +- n*f1 re f2; twin: f2-f1, 2f1-f2, 2f2-f1 re f1+f2):"
+        )?;
+        writeln!(
+            w,
+            "  ch  method       f1 Hz  f1 dBFS        f2 Hz  f2 dBFS  ref        IMD %   IMD dB   d2 dB   d3 dB"
+        )?;
+        for c in &imd {
+            let Some(m) = &c.imd else { continue };
+            writeln!(
+                w,
+                "{:>4}  {:<6} {:>11.4} {:>8} {:>12.4} {:>8}  {:<5} {:>10} {:>8} {:>7} {:>7}",
+                c.channel,
+                m.method,
+                m.f1_hz,
+                opt(m.f1_dbfs, 2, false),
+                m.f2_hz,
+                opt(m.f2_dbfs, 2, false),
+                m.reference,
+                opt(Some(m.imd_pct), 4, false),
+                opt(m.imd_db, 2, false),
+                opt(m.d2_db, 2, false),
+                opt(m.d3_db, 2, false),
+            )?;
+        }
+        writeln!(w, "  products (dB re the reference):")?;
+        for c in &imd {
+            let Some(m) = &c.imd else { continue };
+            let cells: Vec<String> = m
+                .products
+                .iter()
+                .map(|p| format!("{} {}", p.name, opt(p.level_dbr, 2, false)))
+                .collect();
+            writeln!(w, "{:>4}  {}", c.channel, cells.join(", "))?;
+        }
+    }
+
     if let Some(tl) = &r.timeline {
         writeln!(w)?;
         writeln!(w, "Timeline:")?;

@@ -4,7 +4,9 @@
 mod accuracy;
 mod cli;
 mod closed_form;
+mod dashboard;
 mod demo;
+mod imd;
 mod live;
 mod servers;
 mod util;
