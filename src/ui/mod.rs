@@ -123,16 +123,21 @@ where
     B::Error: Into<io::Error>,
 {
     let frame_gap = Duration::from_secs_f64(1.0 / f64::from(opts.fps.clamp(1, 30)));
+    // A clip or a lost input goes on screen sooner: at the 30-a-second cap, not the chosen rate.
+    let urgent_gap = Duration::from_secs_f64(1.0 / 30.0).min(frame_gap);
     let mut last_draw: Option<Instant> = None;
     let mut updates_open = true;
+    let mut urgent = false;
     loop {
         let now = Instant::now();
-        let due = last_draw.map_or(now, |t| t + frame_gap);
+        let gap = if urgent { urgent_gap } else { frame_gap };
+        let due = last_draw.map_or(now, |t| t + gap);
         if d.dirty && now >= due {
             terminal
                 .draw(|f| view::draw(f, d, opts.theme))
                 .map_err(Into::into)?;
             d.dirty = false;
+            urgent = false;
             last_draw = Some(Instant::now());
         }
         // Sleep until the next frame may be drawn when something waits to be drawn, else until
@@ -147,9 +152,11 @@ where
         select! {
             recv(upd) -> u => match u {
                 Ok(u) => {
+                    urgent |= is_urgent(&u);
                     d.apply(u);
                     // Take whatever else is waiting in one go.
                     while let Ok(u) = updates.try_recv() {
+                        urgent |= is_urgent(&u);
                         d.apply(u);
                     }
                 }
@@ -176,6 +183,14 @@ where
             }
         }
     }
+}
+
+/// Updates worth drawing before the next regular frame.
+fn is_urgent(u: &Update) -> bool {
+    matches!(
+        u,
+        Update::ClipStarted { .. } | Update::InputLost(_) | Update::Ended(_)
+    )
 }
 
 #[cfg(test)]
