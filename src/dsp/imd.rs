@@ -40,6 +40,7 @@ use std::str::FromStr;
 use realfft::RealFftPlanner;
 
 use super::sinefit::{fit4, sum_and_squares, sweep, SineFit};
+use super::spectrum::{log_parabola_offset, median, power_into};
 use super::window::{self, Window};
 
 /// Which IMD measurement to make.
@@ -183,16 +184,6 @@ const GUARD_BINS: f64 = 8.0;
 /// Harmonics of the stronger tone not taken for the second tone.
 const HARMONICS_EXCLUDED: std::ops::RangeInclusive<usize> = 2..=10;
 
-/// Median of `v` (reordered).
-fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    let mid = v.len() / 2;
-    let (_, m, _) = v.select_nth_unstable_by(mid, f64::total_cmp);
-    Some(*m)
-}
-
 /// The windowed single-frequency DFT amplitude at `freq_hz` of the pre-windowed record `xw`:
 /// `2·|Σ xw[n]·e^(−iω(n−c))| / Σw`.
 fn amplitude_at(xw: &[f64], win_sum: f64, freq_hz: f64, sample_rate: f64) -> f64 {
@@ -242,11 +233,9 @@ pub fn analyze(samples: &[f32], sample_rate: f64, settings: &ImdSettings) -> Opt
     let mut buf: Vec<f64> = x.iter().zip(win4.iter()).map(|(v, w)| v * w).collect();
     let mut spec = plan.make_output_vec();
     plan.process(&mut buf, &mut spec).ok()?;
-    let norm = 2.0 / (n as f64 * win4_sq);
-    let mut power: Vec<f64> = spec.iter().map(|z| z.norm_sqr() * norm).collect();
-    power[0] *= 0.5;
+    let mut power = vec![0.0; spec.len()];
+    power_into(n, win4_sq, &mut power, |m| spec[m]);
     let last = power.len() - 1;
-    power[last] *= 0.5;
 
     let df = sample_rate / n as f64;
     let lobe4 = Window::BlackmanHarris4.main_lobe_half_width();
@@ -263,21 +252,9 @@ pub fn analyze(samples: &[f32], sample_rate: f64, settings: &ImdSettings) -> Opt
             .max_by(|&a, &b| power[a].total_cmp(&power[b]))
     };
     let interpolate = |k: usize| -> Peak {
-        // Parabola through log power.
-        let (a, b, c) = (
-            power[k - 1].max(1e-300).ln(),
-            power[k].max(1e-300).ln(),
-            power[k + 1].max(1e-300).ln(),
-        );
-        let denom = a - 2.0 * b + c;
-        let delta = if denom.abs() > 0.0 {
-            (0.5 * (a - c) / denom).clamp(-0.5, 0.5)
-        } else {
-            0.0
-        };
         Peak {
             bin: k,
-            nu: k as f64 + delta,
+            nu: k as f64 + log_parabola_offset(&power, k),
         }
     };
     let near = |k: usize, centre: f64| (k as f64 - centre).abs() < GUARD_BINS;

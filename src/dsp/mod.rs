@@ -5,6 +5,7 @@ pub mod clip;
 pub mod imd;
 pub mod level;
 pub mod sinefit;
+pub mod spectrum;
 pub mod tone;
 pub mod truepeak;
 pub mod window;

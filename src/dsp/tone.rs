@@ -33,6 +33,7 @@ use realfft::num_complex::Complex;
 use realfft::{RealFftPlanner, RealToComplex};
 
 use super::sinefit::{fit4, sum_and_squares};
+use super::spectrum::{log_parabola_offset, median, power_into};
 use super::window::{self, Window};
 
 /// How far one family of harmonics (odd or even orders) must stand below the other for the
@@ -125,8 +126,6 @@ pub struct ToneAnalyzer {
     win4: Arc<Vec<f64>>,
     /// `Σw²` of the 4-term window.
     win4_sq: f64,
-    /// `Σw` of the 7-term window.
-    win7_sum: f64,
     x: Vec<f64>,
     buf: Vec<f64>,
     spec: Vec<Complex<f64>>,
@@ -159,15 +158,6 @@ fn wrap_deg(mut d: f64) -> f64 {
     d
 }
 
-fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    let mid = v.len() / 2;
-    let (_, m, _) = v.select_nth_unstable_by(mid, f64::total_cmp);
-    Some(*m)
-}
-
 impl ToneAnalyzer {
     /// A new analyser; buffers grow to the largest record seen and are then reused.
     pub fn new() -> Self {
@@ -176,7 +166,6 @@ impl ToneAnalyzer {
             plan: None,
             win4: Arc::new(Vec::new()),
             win4_sq: 0.0,
-            win7_sum: 0.0,
             x: Vec::new(),
             buf: Vec::new(),
             spec: Vec::new(),
@@ -195,7 +184,6 @@ impl ToneAnalyzer {
         let plan = self.planner.plan_fft_forward(n);
         self.win4 = window::shared(Window::BlackmanHarris4, n);
         self.win4_sq = self.win4.iter().map(|w| w * w).sum();
-        self.win7_sum = window::shared(Window::BlackmanHarris7, n).iter().sum();
         self.buf.resize(n, 0.0);
         self.spec = plan.make_output_vec();
         self.scratch = plan.make_scratch_vec();
@@ -204,42 +192,26 @@ impl ToneAnalyzer {
         plan
     }
 
-    /// Power per bin from `self.spec` (bin `m` given by `bin(spec, m)`) into `self.power`,
-    /// calibrated for the 4-term window so that the sum over bins estimates mean power.
-    fn power_from(&mut self, n: usize, bin: impl Fn(&[Complex<f64>], usize) -> Complex<f64>) {
-        let norm = 2.0 / (n as f64 * self.win4_sq);
-        for (m, p) in self.power.iter_mut().enumerate() {
-            *p = bin(&self.spec, m).norm_sqr() * norm;
-        }
-        // DC and Nyquist bins are not doubled.
-        self.power[0] *= 0.5;
-        let last = self.power.len() - 1;
-        self.power[last] *= 0.5;
-    }
-
-    /// [`ToneAnalyzer::power_from`] for the 4-term window applied to the unwindowed transform in
-    /// `self.spec` ([`Window::windowed_bin`], written out for the bins away from the ends).
+    /// Power per bin of the 4-term window from the *unwindowed* transform in `self.spec`
+    /// ([`Window::windowed_bin`], written out for the bins away from the ends).
     fn power_bh4_from_rect(&mut self, n: usize) {
         let win = Window::BlackmanHarris4;
         let [a0, a1, a2, a3] = match win.coefficients() {
             &[a0, a1, a2, a3] => [a0, a1 / 2.0, a2 / 2.0, a3 / 2.0],
             _ => unreachable!("the 4-term window has four coefficients"),
         };
-        let norm = 2.0 / (n as f64 * self.win4_sq);
         let r = &self.spec;
-        let last = self.power.len() - 1;
-        for m in 3..last.saturating_sub(2) {
-            let x = r[m] * a0
-                + (r[m - 1] + r[m + 1]) * a1
-                + (r[m - 2] + r[m + 2]) * a2
-                + (r[m - 3] + r[m + 3]) * a3;
-            self.power[m] = x.norm_sqr() * norm;
-        }
-        for m in (0..3).chain(last.saturating_sub(2)..=last) {
-            self.power[m] = win.windowed_bin(r, m).norm_sqr() * norm;
-        }
-        self.power[0] *= 0.5;
-        self.power[last] *= 0.5;
+        let inner = 3..r.len().saturating_sub(3);
+        power_into(n, self.win4_sq, &mut self.power, |m| {
+            if inner.contains(&m) {
+                r[m] * a0
+                    + (r[m - 1] + r[m + 1]) * a1
+                    + (r[m - 2] + r[m + 2]) * a2
+                    + (r[m - 3] + r[m + 3]) * a3
+            } else {
+                win.windowed_bin(r, m)
+            }
+        });
     }
 
     /// Analyse `samples` (one channel, full scale = 1) taken at `sample_rate`.
@@ -294,7 +266,8 @@ impl ToneAnalyzer {
         }
         plan.process_with_scratch(&mut self.buf, &mut self.spec, &mut self.scratch)
             .ok()?;
-        self.power_from(n, |s, m| s[m]);
+        let spec = &self.spec;
+        power_into(n, self.win4_sq, &mut self.power, |m| spec[m]);
 
         let df = sample_rate / n as f64;
         let nyquist = sample_rate / 2.0;
@@ -334,17 +307,7 @@ impl ToneAnalyzer {
         }
 
         // Interpolated peak (parabola through log power), then the four-parameter fit.
-        let (a, b, c) = (
-            self.power[kp - 1].max(1e-300).ln(),
-            self.power[kp].max(1e-300).ln(),
-            self.power[kp + 1].max(1e-300).ln(),
-        );
-        let denom = a - 2.0 * b + c;
-        let delta = if denom.abs() > 0.0 {
-            (0.5 * (a - c) / denom).clamp(-0.5, 0.5)
-        } else {
-            0.0
-        };
+        let delta = log_parabola_offset(&self.power, kp);
         let f_coarse = match hint_hz {
             Some(h) if (h / df - kp as f64).abs() <= 1.0 => h,
             _ => (kp as f64 + delta) * df,
