@@ -5,7 +5,7 @@
 
 use std::io::Write;
 use std::path::PathBuf;
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
 use std::time::{Duration, SystemTime};
 
@@ -14,8 +14,8 @@ use clap::Args;
 use crate::cli::plan_from;
 use crate::config;
 use crate::live::engine::EngineSettings;
-use crate::live::run::{Published, Totals};
-use crate::live::session::{Notice, Session, SourceSpec};
+use crate::live::run::Totals;
+use crate::live::session::{Notice, Session, SourceSpec, Step};
 use crate::live::source::Pace;
 use crate::sink::log::{LogFormat, LogMeta, LogWriter, Rotation, Target};
 
@@ -179,38 +179,22 @@ fn run<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
     Ok(code)
 }
 
-/// Write the analysis thread's findings until it ends, supervising the input between waits.
-/// Returns the totals from its end marker (`None` if it vanished without one).
+/// Write the analysis thread's findings until it ends, the input's losses and returns with
+/// them. Returns the totals from its end marker (`None` if it vanished without one).
 fn pump(session: &mut Session, log: &mut LogWriter, stop: &AtomicBool) -> Option<Totals> {
-    let mut stopping = false;
-    loop {
-        if !stopping && (stop.load(Ordering::Relaxed) || log.is_closed()) {
-            // Our own shutdown: stop the source; the analysis drains the ring and ends.
-            stopping = true;
-            session.stop();
-        }
-        if !stopping {
-            for notice in session.supervise() {
-                match notice {
-                    Notice::Lost(reason) => log.input_lost(session.t_s(), &reason),
-                    Notice::Restored => log.input_restored(session.t_s()),
-                    Notice::Trouble(msg) => {
-                        let _ = writeln!(std::io::stderr(), "brink log: input: {msg}");
-                    }
-                }
+    session.drive(stop, |session, step| {
+        match step {
+            Step::Event(ev) => log.event(&ev),
+            Step::Notice(Notice::Lost(reason)) => log.input_lost(session.t_s(), &reason),
+            Step::Notice(Notice::Restored) => log.input_restored(session.t_s()),
+            Step::Notice(Notice::Trouble(msg)) => {
+                let _ = writeln!(std::io::stderr(), "brink log: input: {msg}");
             }
+            Step::Idle => {}
         }
-        match session
-            .analysis
-            .events
-            .recv_timeout(Duration::from_millis(50))
-        {
-            Ok(Published::Event(ev)) => log.event(&ev),
-            Ok(Published::End(t)) => return Some(t),
-            Err(crossbeam_channel::RecvTimeoutError::Timeout) => {}
-            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => return None,
-        }
-    }
+        // A closed output (a broken pipe) ends the run as a signal would.
+        !log.is_closed()
+    })
 }
 
 /// Write the stop record and pick the exit status.

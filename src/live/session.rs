@@ -12,9 +12,9 @@ use crossbeam_channel::{Receiver, Sender};
 
 use super::capture::{open_input, probe_input, Capture, CaptureFault};
 use super::devices::{find_host, find_input, parse_channels};
-use super::engine::{Engine, EngineSettings};
+use super::engine::{Engine, EngineSettings, LiveEvent};
 use super::ring::{ring, AnalysisReader, Counters};
-use super::run::{spawn_analysis, spawn_analysis_with, Analysis, Feed, Totals};
+use super::run::{spawn_analysis, spawn_analysis_with, Analysis, Feed, Published, Totals};
 use super::source::{FileSource, MemorySource, Pace};
 use crate::source::wav::WavError;
 
@@ -47,6 +47,18 @@ pub enum Notice {
     Restored,
     /// A stream error that did not end the input.
     Trouble(String),
+}
+
+/// What [`Session::drive`] hands its caller.
+#[derive(Debug)]
+pub enum Step {
+    /// A finding of the analysis.
+    Event(LiveEvent),
+    /// Something supervision noticed (none once the stop was asked for).
+    Notice(Notice),
+    /// Nothing arrived for a while (this comes at least every 50 ms): a chance to look at
+    /// counters or the clock.
+    Idle,
 }
 
 /// Where to take the audio from.
@@ -410,6 +422,37 @@ impl Session {
         notices
     }
 
+    /// Run until the analysis ends, handing every finding and supervision notice to `on` (with
+    /// the session, for its clock and counters) and supervising the input between waits. When
+    /// `stop` is raised or `on` returns `false`, the source is stopped; the analysis then drains
+    /// the ring and ends. Returns its totals (`None` if it vanished without them).
+    pub fn drive(
+        &mut self,
+        stop: &AtomicBool,
+        mut on: impl FnMut(&Session, Step) -> bool,
+    ) -> Option<Totals> {
+        let mut stopping = false;
+        let mut go_on = true;
+        loop {
+            if !stopping && (!go_on || stop.load(Ordering::Relaxed)) {
+                stopping = true;
+                self.stop();
+            }
+            if !stopping {
+                for n in self.supervise() {
+                    go_on &= on(self, Step::Notice(n));
+                }
+            }
+            let step = match self.analysis.events.recv_timeout(Duration::from_millis(50)) {
+                Ok(Published::Event(ev)) => Step::Event(ev),
+                Ok(Published::End(t)) => return Some(t),
+                Err(crossbeam_channel::RecvTimeoutError::Timeout) => Step::Idle,
+                Err(crossbeam_channel::RecvTimeoutError::Disconnected) => return None,
+            };
+            go_on &= on(self, step);
+        }
+    }
+
     /// Wait for the source and the analysis thread to end; returns the analysis totals (taken
     /// from its end marker when the caller has it, else from the thread) and a file source's
     /// read error, if any.
@@ -428,7 +471,7 @@ impl Session {
             loop {
                 let left = deadline.saturating_duration_since(Instant::now());
                 match self.analysis.events.recv_timeout(left) {
-                    Ok(super::run::Published::End(t)) => break Some(t),
+                    Ok(Published::End(t)) => break Some(t),
                     Ok(_) => {}
                     Err(_) => break None,
                 }

@@ -11,7 +11,7 @@ use std::sync::Arc;
 use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
-use crossbeam_channel::{RecvTimeoutError, Sender};
+use crossbeam_channel::Sender;
 use serde::Deserialize;
 
 use super::model::{harmonic_report, Update};
@@ -19,8 +19,8 @@ use crate::analysis::channel::distortion_report;
 use crate::analysis::report::{ClipEvent, DistortionReport};
 use crate::dsp::clip::ClipKind;
 use crate::live::engine::{LiveEvent, Onset};
-use crate::live::run::{Published, Totals};
-use crate::live::session::{Notice, Session, SourceMeta};
+use crate::live::run::Totals;
+use crate::live::session::{Notice, Session, SourceMeta, Step};
 
 /// The update a live finding makes (`None` for what the screen does not use).
 pub fn from_live(ev: LiveEvent, rate: f64, window_s: f64) -> Option<Update> {
@@ -67,22 +67,17 @@ pub fn spawn_live(
         .name("brink-feed".into())
         .spawn(move || {
             let rate = f64::from(session.meta.sample_rate_hz);
-            let mut stopping = false;
             let mut last_health = Instant::now();
-            let end = loop {
-                if !stopping && stop.load(Ordering::Relaxed) {
-                    stopping = true;
-                    session.stop();
-                }
-                if !stopping {
-                    for n in session.supervise() {
-                        let u = match n {
-                            Notice::Lost(r) => Update::InputLost(r),
-                            Notice::Restored => Update::InputRestored,
-                            Notice::Trouble(_) => continue,
-                        };
-                        let _ = tx.send(u);
-                    }
+            let end = session.drive(&stop, |session, step| {
+                let update = match step {
+                    Step::Event(ev) => from_live(ev, rate, window_s),
+                    Step::Notice(Notice::Lost(r)) => Some(Update::InputLost(r)),
+                    Step::Notice(Notice::Restored) => Some(Update::InputRestored),
+                    Step::Notice(Notice::Trouble(_)) | Step::Idle => None,
+                };
+                // An unbounded hand-over: the screen thread drains it every wake.
+                if let Some(u) = update {
+                    let _ = tx.send(u);
                 }
                 if last_health.elapsed() >= Duration::from_millis(500) {
                     last_health = Instant::now();
@@ -91,22 +86,9 @@ pub fn spawn_live(
                         load: Some(session.analysis.load()),
                     });
                 }
-                match session
-                    .analysis
-                    .events
-                    .recv_timeout(Duration::from_millis(50))
-                {
-                    Ok(Published::Event(ev)) => {
-                        if let Some(u) = from_live(ev, rate, window_s) {
-                            // An unbounded hand-over: the screen thread drains it every wake.
-                            let _ = tx.send(u);
-                        }
-                    }
-                    Ok(Published::End(t)) => break Some(t),
-                    Err(RecvTimeoutError::Timeout) => {}
-                    Err(RecvTimeoutError::Disconnected) => break None,
-                }
-            };
+                true
+            });
+            let stopping = stop.load(Ordering::Relaxed);
             let (totals, err) = session.finish(end);
             let why = match &err {
                 Some(e) => format!("read error: {e}"),
