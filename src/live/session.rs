@@ -13,7 +13,7 @@ use crossbeam_channel::{Receiver, Sender};
 use super::capture::{open_input, probe_input, Capture, CaptureFault};
 use super::devices::{find_host, find_input, parse_channels};
 use super::engine::{Engine, EngineSettings, LiveEvent};
-use super::ring::{ring, AnalysisReader, Counters};
+use super::ring::{ring, AnalysisReader, CaptureWriter, Counters};
 use super::run::{spawn_analysis, spawn_analysis_with, Analysis, Feed, Published, Totals};
 use super::source::{FileSource, MemorySource, Pace};
 use crate::source::wav::WavError;
@@ -178,6 +178,53 @@ fn open_stream(
     Ok((capture, reader))
 }
 
+/// A source played into the ring by a thread of ours (a file or samples in memory).
+struct Played {
+    host: &'static str,
+    device: String,
+    rate: u32,
+    channels: usize,
+    bits: Option<u32>,
+}
+
+impl Played {
+    /// Ring, engine and analysis thread, then the player (`spawn`) writing into the ring.
+    fn start(
+        self,
+        channels: Option<&str>,
+        settings: EngineSettings,
+        event_capacity: usize,
+        spawn: impl FnOnce(
+            CaptureWriter,
+            Arc<AtomicBool>,
+            Arc<AtomicBool>,
+        ) -> std::io::Result<JoinHandle<Result<(), WavError>>>,
+    ) -> Result<Session, String> {
+        let selected = selected_channels(channels, self.channels)?;
+        let (writer, reader) = ring(self.channels, self.rate as usize * 2);
+        let engine = Engine::new(self.rate, self.channels, self.bits, settings).select(&selected);
+        let done = Arc::new(AtomicBool::new(false));
+        let player_stop = Arc::new(AtomicBool::new(false));
+        let analysis = spawn_analysis(reader, engine, Arc::clone(&done), event_capacity)
+            .map_err(|e| format!("cannot start the analysis thread: {e}"))?;
+        let player = spawn(writer, Arc::clone(&player_stop), Arc::clone(&done))
+            .map_err(|e| format!("cannot start the {} source: {e}", self.host))?;
+        Ok(Session {
+            position: analysis.position(),
+            analysis,
+            meta: SourceMeta {
+                host: self.host.to_string(),
+                device: self.device,
+                sample_rate_hz: self.rate,
+                channels: selected,
+            },
+            done,
+            player_stop,
+            driver: Some(Driver::Player(player)),
+        })
+    }
+}
+
 impl Session {
     /// Start measuring `spec`, analysing the channels `channels` names (all when `None`).
     pub fn start(
@@ -198,32 +245,15 @@ impl Session {
                 let source =
                     FileSource::open(path, *looping, *pace).map_err(|e| format!("{shown}: {e}"))?;
                 let info = source.info().clone();
-                let selected = selected_channels(channels, info.channels)?;
-                let (writer, reader) = ring(info.channels, info.sample_rate as usize * 2);
-                let engine = Engine::new(
-                    info.sample_rate,
-                    info.channels,
-                    info.integer_bits(),
-                    settings,
-                )
-                .select(&selected);
-                let analysis = spawn_analysis(reader, engine, Arc::clone(&done), event_capacity)
-                    .map_err(|e| format!("cannot start the analysis thread: {e}"))?;
-                let player = source
-                    .spawn(writer, Arc::clone(&player_stop), Arc::clone(&done))
-                    .map_err(|e| format!("cannot start the file source: {e}"))?;
-                Ok(Session {
-                    position: analysis.position(),
-                    analysis,
-                    meta: SourceMeta {
-                        host: "file".to_string(),
-                        device: shown,
-                        sample_rate_hz: info.sample_rate,
-                        channels: selected,
-                    },
-                    done,
-                    player_stop,
-                    driver: Some(Driver::Player(player)),
+                let played = Played {
+                    host: "file",
+                    device: shown,
+                    rate: info.sample_rate,
+                    channels: info.channels,
+                    bits: info.integer_bits(),
+                };
+                played.start(channels, settings, event_capacity, |w, stop, done| {
+                    source.spawn(w, stop, done)
                 })
             }
             SourceSpec::Memory {
@@ -232,27 +262,16 @@ impl Session {
                 channels: count,
                 samples,
             } => {
-                let selected = selected_channels(channels, *count)?;
-                let (writer, reader) = ring(*count, *rate as usize * 2);
-                let engine = Engine::new(*rate, *count, None, settings).select(&selected);
-                let analysis = spawn_analysis(reader, engine, Arc::clone(&done), event_capacity)
-                    .map_err(|e| format!("cannot start the analysis thread: {e}"))?;
                 let source = MemorySource::new(*rate, *count, Arc::clone(samples), true);
-                let player = source
-                    .spawn(writer, Arc::clone(&player_stop), Arc::clone(&done))
-                    .map_err(|e| format!("cannot start the demo source: {e}"))?;
-                Ok(Session {
-                    position: analysis.position(),
-                    analysis,
-                    meta: SourceMeta {
-                        host: "demo".to_string(),
-                        device: name.clone(),
-                        sample_rate_hz: *rate,
-                        channels: selected,
-                    },
-                    done,
-                    player_stop,
-                    driver: Some(Driver::Player(player)),
+                let played = Played {
+                    host: "demo",
+                    device: name.clone(),
+                    rate: *rate,
+                    channels: *count,
+                    bits: None,
+                };
+                played.start(channels, settings, event_capacity, |w, stop, done| {
+                    source.spawn(w, stop, done)
                 })
             }
             SourceSpec::Device { host, input, rate } => {

@@ -52,17 +52,13 @@ impl FileSource {
     /// thread's result is the first read error, if any.
     pub fn spawn(
         self,
-        mut writer: CaptureWriter,
+        writer: CaptureWriter,
         stop: Arc<AtomicBool>,
         done: Arc<AtomicBool>,
     ) -> std::io::Result<JoinHandle<Result<(), WavError>>> {
-        std::thread::Builder::new()
-            .name("brink-file-source".into())
-            .spawn(move || {
-                let result = self.play(&mut writer, &stop);
-                done.store(true, Ordering::Release);
-                result
-            })
+        spawn_player("brink-file-source", writer, stop, done, move |w, s| {
+            self.play(w, s)
+        })
     }
 
     fn play(&self, writer: &mut CaptureWriter, stop: &AtomicBool) -> Result<(), WavError> {
@@ -151,30 +147,49 @@ impl MemorySource {
     /// `stop` is set; `done` is raised when the thread finishes.
     pub fn spawn(
         self,
-        mut writer: CaptureWriter,
+        writer: CaptureWriter,
         stop: Arc<AtomicBool>,
         done: Arc<AtomicBool>,
     ) -> std::io::Result<JoinHandle<Result<(), WavError>>> {
-        std::thread::Builder::new()
-            .name("brink-memory-source".into())
-            .spawn(move || {
-                let mut clock = Pacer::new(self.rate, Pace::RealTime);
-                let step = clock.block * self.channels;
-                'outer: loop {
-                    for chunk in self.samples.chunks(step) {
-                        if stop.load(Ordering::Relaxed) {
-                            break 'outer;
-                        }
-                        clock.wait();
-                        writer.write(chunk);
-                        clock.played(chunk.len() / self.channels);
-                    }
-                    if !self.looping || self.samples.is_empty() {
-                        break;
-                    }
-                }
-                done.store(true, Ordering::Release);
-                Ok(())
-            })
+        spawn_player("brink-memory-source", writer, stop, done, move |w, s| {
+            self.play(w, s);
+            Ok(())
+        })
     }
+
+    fn play(&self, writer: &mut CaptureWriter, stop: &AtomicBool) {
+        let mut clock = Pacer::new(self.rate, Pace::RealTime);
+        let step = clock.block * self.channels;
+        loop {
+            for chunk in self.samples.chunks(step) {
+                if stop.load(Ordering::Relaxed) {
+                    return;
+                }
+                clock.wait();
+                writer.write(chunk);
+                clock.played(chunk.len() / self.channels);
+            }
+            if !self.looping || self.samples.is_empty() {
+                return;
+            }
+        }
+    }
+}
+
+/// Run `play` on a new thread named `name`; `done` is raised when it returns, however it
+/// returns, so the analysis knows nothing more will come.
+fn spawn_player(
+    name: &str,
+    mut writer: CaptureWriter,
+    stop: Arc<AtomicBool>,
+    done: Arc<AtomicBool>,
+    play: impl FnOnce(&mut CaptureWriter, &AtomicBool) -> Result<(), WavError> + Send + 'static,
+) -> std::io::Result<JoinHandle<Result<(), WavError>>> {
+    std::thread::Builder::new()
+        .name(name.into())
+        .spawn(move || {
+            let result = play(&mut writer, &stop);
+            done.store(true, Ordering::Release);
+            result
+        })
 }
