@@ -190,11 +190,9 @@ struct Lane {
     history: Vec<f32>,
     head: usize,
     filled: usize,
-    /// Stream position of this lane's next tone analysis.
+    /// Stream position of this lane's next tone analysis (the lanes take turns, see
+    /// [`Engine::stagger`]).
     next_tone: u64,
-    /// Where this lane's analyses fall within each tone interval (frames): the lanes take turns
-    /// so that no single block carries every channel's analysis.
-    tone_offset: u64,
     latest: Option<ToneReport>,
     /// Fundamental of the lane's last tone analysis (starts the next fit).
     last_f0: Option<f64>,
@@ -264,7 +262,6 @@ impl Engine {
                 head: 0,
                 filled: 0,
                 next_tone: 0,
-                tone_offset: 0,
                 latest: None,
                 last_f0: None,
                 meters: Ballistics::ALL.map(|b| Meter::new(b, r)),
@@ -298,20 +295,24 @@ impl Engine {
         engine
     }
 
-    /// Spread the lanes' tone analyses evenly over the tone interval, from `self.pos` on.
+    /// Spread the lanes' tone analyses evenly over the tone interval, from `self.pos` on, so
+    /// that no single block carries every channel's analysis.
     fn stagger(&mut self) {
         let count = self.lanes.len().max(1) as u64;
         let every = self.tone_every;
         for (i, lane) in self.lanes.iter_mut().enumerate() {
-            lane.tone_offset = every * i as u64 / count;
-            lane.next_tone = self.pos + every + lane.tone_offset;
+            lane.next_tone = self.pos + every + every * i as u64 / count;
         }
-        self.next_tone = self
-            .lanes
+        self.next_tone = self.earliest_tone();
+    }
+
+    /// The earliest of the lanes' next tone analyses.
+    fn earliest_tone(&self) -> u64 {
+        self.lanes
             .iter()
             .map(|l| l.next_tone)
             .min()
-            .unwrap_or(self.pos + every);
+            .unwrap_or(self.pos + self.tone_every)
     }
 
     /// Sample rate.
@@ -508,12 +509,7 @@ impl Engine {
             }
             lane.latest = report;
         }
-        self.next_tone = self
-            .lanes
-            .iter()
-            .map(|l| l.next_tone)
-            .min()
-            .unwrap_or(pos + every);
+        self.next_tone = self.earliest_tone();
     }
 
     fn summary(&mut self, out: &mut impl FnMut(LiveEvent)) {
