@@ -66,8 +66,15 @@ pub enum Command {
     Watch(crate::watch::WatchArgs),
     /// The dashboard on the bundled demo tones, looping; no audio hardware needed.
     Demo(crate::watch::DemoArgs),
+    /// Drive a stage under test from an output and measure its return: THD and harmonics
+    /// against drive (or frequency), the clipping onset and knee.
+    Sweep(crate::sweep::SweepArgs),
     /// List the audio hosts and devices this machine offers.
     Devices(DevicesArgs),
+    /// Compare two harmonic fingerprints (WAV captures, snapshots, scan reports) or two sweeps
+    /// side by side, with the differences in plain words.
+    #[command(after_help = crate::compare::COMPARE_AFTER_HELP)]
+    Compare(crate::compare::CompareArgs),
 }
 
 /// Arguments of `brink devices`.
@@ -133,6 +140,15 @@ pub struct ScanArgs {
     /// re the sum of both tones) or auto (twin when f2 < 2·f1).
     #[arg(long, value_name = "METHOD")]
     pub imd: Option<crate::dsp::imd::ImdMethod>,
+    /// Also draw the spectrum of one channel's tone span (dBFS against log frequency, the
+    /// fundamental and harmonics marked by order) as SVG into FILE. With several input files,
+    /// each figure is FILE's name plus the input's (spectrum-take1.svg); two inputs with the
+    /// same name are refused.
+    #[arg(long, value_name = "FILE")]
+    pub svg: Option<PathBuf>,
+    /// Channel the --svg figure shows (from 1) [default: the first channel with a tone].
+    #[arg(long, value_name = "N", requires = "svg", value_parser = clap::value_parser!(u16).range(1..))]
+    pub channel: Option<u16>,
 }
 
 /// Validated settings of a scan run.

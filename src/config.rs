@@ -238,7 +238,7 @@ pub enum ConfigError {
     Value {
         /// The file.
         path: PathBuf,
-        /// Where the value starts, when known (`[watch]` keys).
+        /// Where the value starts, when known.
         at: Option<Position>,
         /// The table holding the key.
         section: &'static str,
@@ -263,25 +263,28 @@ struct RawFile {
     watch: RawWatch,
 }
 
+/// Each value that can be refused keeps its place in the text, for errors that name line and
+/// column.
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawScan {
-    every: Option<Dur>,
-    tone_span: Option<Dur>,
-    merge_gap: Option<Dur>,
+    every: Option<Spanned<Dur>>,
+    tone_span: Option<Spanned<Dur>>,
+    merge_gap: Option<Spanned<Dur>>,
     json: Option<bool>,
 }
 
+/// Each value with its place in the text, for errors that name line and column.
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawMeasure {
-    band_low_hz: Option<Num>,
-    band_high_hz: Option<Num>,
-    max_order: Option<Int>,
-    fundamental_hz: Option<Num>,
-    over_length: Option<Int>,
-    flat_tolerance: Option<Num>,
-    flat_min_level_dbfs: Option<Num>,
+    band_low_hz: Option<Spanned<Num>>,
+    band_high_hz: Option<Spanned<Num>>,
+    max_order: Option<Spanned<Int>>,
+    fundamental_hz: Option<Spanned<Num>>,
+    over_length: Option<Spanned<Int>>,
+    flat_tolerance: Option<Spanned<Num>>,
+    flat_min_level_dbfs: Option<Spanned<Num>>,
 }
 
 /// Each value with its place in the text, for errors that name line and column.
@@ -460,16 +463,6 @@ struct Checker<'a> {
 }
 
 impl Checker<'_> {
-    fn bad(
-        &self,
-        section: &'static str,
-        key: &'static str,
-        value: impl fmt::Display,
-        problem: impl Into<String>,
-    ) -> ConfigError {
-        self.bad_at(None, section, key, value, problem)
-    }
-
     fn bad_at(
         &self,
         at: Option<Position>,
@@ -490,32 +483,53 @@ impl Checker<'_> {
 
     fn check(&self, raw: RawFile) -> Result<ConfigFile, ConfigError> {
         let s = raw.scan;
-        let m = raw.measure;
-        let num = |n: Option<Num>| n.map(|Num(v)| v);
-        let (band_low_hz, band_high_hz) = (num(m.band_low_hz), num(m.band_high_hz));
-        let fundamental_hz = num(m.fundamental_hz);
-        let (flat_tolerance, flat_min_level_dbfs) =
-            (num(m.flat_tolerance), num(m.flat_min_level_dbfs));
         let scan = ScanSection {
             every: self.duration("every", s.every, MIN_SPAN)?,
             tone_span: self.duration("tone_span", s.tone_span, MIN_SPAN)?,
             merge_gap: self.duration("merge_gap", s.merge_gap, Duration::ZERO)?,
             json: s.json,
         };
+        Ok(ConfigFile {
+            scan,
+            measure: self.measure(raw.measure)?,
+            watch: self.watch(raw.watch)?,
+        })
+    }
 
+    /// The `[measure]` table; errors name the value's line and column.
+    fn measure(&self, m: RawMeasure) -> Result<MeasureSection, ConfigError> {
         const M: &str = "measure";
+        let num = |(v, at): (Option<Num>, Option<Position>)| (v.map(|Num(x)| x), at);
+        let (band_low_hz, low_at) = num(self.unspan(m.band_low_hz));
+        let (band_high_hz, high_at) = num(self.unspan(m.band_high_hz));
+        let (fundamental_hz, fundamental_at) = num(self.unspan(m.fundamental_hz));
+        let (flat_tolerance, tolerance_at) = num(self.unspan(m.flat_tolerance));
+        let (flat_min_level_dbfs, min_level_at) = num(self.unspan(m.flat_min_level_dbfs));
         if let Some(v) = band_low_hz {
             if !(v >= 0.0 && v.is_finite()) {
-                return Err(self.bad(M, "band_low_hz", fmt_f(v), "must be 0 Hz or above"));
+                return Err(self.bad_at(
+                    low_at,
+                    M,
+                    "band_low_hz",
+                    fmt_f(v),
+                    "must be 0 Hz or above",
+                ));
             }
         }
         if let Some(v) = band_high_hz {
             if !(v > 0.0 && v.is_finite()) {
-                return Err(self.bad(M, "band_high_hz", fmt_f(v), "must be above 0 Hz"));
+                return Err(self.bad_at(
+                    high_at,
+                    M,
+                    "band_high_hz",
+                    fmt_f(v),
+                    "must be above 0 Hz",
+                ));
             }
             if let Some(low) = band_low_hz {
                 if v <= low {
-                    return Err(self.bad(
+                    return Err(self.bad_at(
+                        high_at,
                         M,
                         "band_high_hz",
                         fmt_f(v),
@@ -526,14 +540,23 @@ impl Checker<'_> {
         }
         if let Some(v) = fundamental_hz {
             if !(v > 0.0 && v.is_finite()) {
-                return Err(self.bad(M, "fundamental_hz", fmt_f(v), "must be above 0 Hz"));
+                return Err(self.bad_at(
+                    fundamental_at,
+                    M,
+                    "fundamental_hz",
+                    fmt_f(v),
+                    "must be above 0 Hz",
+                ));
             }
         }
-        let max_order = self.int(None, M, "max_order", m.max_order, MAX_ORDER_RANGE)?;
-        let over_length = self.int(None, M, "over_length", m.over_length, OVER_LENGTH_RANGE)?;
+        let (max_order, at) = self.unspan(m.max_order);
+        let max_order = self.int(at, M, "max_order", max_order, MAX_ORDER_RANGE)?;
+        let (over_length, at) = self.unspan(m.over_length);
+        let over_length = self.int(at, M, "over_length", over_length, OVER_LENGTH_RANGE)?;
         if let Some(v) = flat_tolerance {
             if !(v > 0.0 && v < 0.5) {
-                return Err(self.bad(
+                return Err(self.bad_at(
+                    tolerance_at,
                     M,
                     "flat_tolerance",
                     fmt_f(v),
@@ -543,7 +566,8 @@ impl Checker<'_> {
         }
         if let Some(v) = flat_min_level_dbfs {
             if v.is_nan() || v >= 0.0 {
-                return Err(self.bad(
+                return Err(self.bad_at(
+                    min_level_at,
                     M,
                     "flat_min_level_dbfs",
                     fmt_f(v),
@@ -551,18 +575,14 @@ impl Checker<'_> {
                 ));
             }
         }
-        Ok(ConfigFile {
-            scan,
-            measure: MeasureSection {
-                band_low_hz,
-                band_high_hz,
-                max_order,
-                fundamental_hz,
-                over_length,
-                flat_tolerance,
-                flat_min_level_dbfs,
-            },
-            watch: self.watch(raw.watch)?,
+        Ok(MeasureSection {
+            band_low_hz,
+            band_high_hz,
+            max_order,
+            fundamental_hz,
+            over_length,
+            flat_tolerance,
+            flat_min_level_dbfs,
         })
     }
 
@@ -632,14 +652,14 @@ impl Checker<'_> {
     }
 
     /// A `[scan]` duration string: parses as on the command line, at least `min`, at most
-    /// [`MAX_DURATION`].
+    /// [`MAX_DURATION`]; errors name its line and column.
     fn duration(
         &self,
         key: &'static str,
-        text: Option<Dur>,
+        text: Option<Spanned<Dur>>,
         min: Duration,
     ) -> Result<Option<Duration>, ConfigError> {
-        let Some(Dur(text)) = text else {
+        let (Some(Dur(text)), at) = self.unspan(text) else {
             return Ok(None);
         };
         let quoted = format!("{text:?}");
@@ -648,10 +668,17 @@ impl Checker<'_> {
                 GenError::BadDuration { reason, .. } => reason.to_string(),
                 other => other.to_string(),
             };
-            self.bad("scan", key, &quoted, format!("is not a duration: {why}"))
+            self.bad_at(
+                at,
+                "scan",
+                key,
+                &quoted,
+                format!("is not a duration: {why}"),
+            )
         })?;
         if d < min {
-            return Err(self.bad(
+            return Err(self.bad_at(
+                at,
                 "scan",
                 key,
                 &quoted,
@@ -659,7 +686,7 @@ impl Checker<'_> {
             ));
         }
         if d > MAX_DURATION {
-            return Err(self.bad("scan", key, &quoted, "is too long: at most 24 hours"));
+            return Err(self.bad_at(at, "scan", key, &quoted, "is too long: at most 24 hours"));
         }
         Ok(Some(d))
     }
@@ -952,66 +979,148 @@ mod tests {
     fn bad_values_name_key_and_value() {
         assert_eq!(
             err("[measure]\nmax_order = 90\n"),
-            "config/x.toml: [measure] max_order = 90 is outside 2..=40"
+            "config/x.toml:2:13: [measure] max_order = 90 is outside 2..=40"
         );
+        // The pair is refused at the upper edge, where it is written.
         assert_eq!(
             err("[measure]\nband_low_hz = 1000.0\nband_high_hz = 500.0\n"),
-            "config/x.toml: [measure] band_high_hz = 500.0 must be above band_low_hz = 1000.0"
+            "config/x.toml:3:16: [measure] band_high_hz = 500.0 must be above \
+             band_low_hz = 1000.0"
         );
+        // Each value on line 2, right after `key = `.
         let cases: &[(&str, &str)] = &[
-            ("[measure]\nmax_order = 1\n", "max_order = 1 "),
-            ("[measure]\nmax_order = -3\n", "max_order = -3 "),
-            ("[measure]\nover_length = 0\n", "over_length = 0 "),
-            ("[measure]\nover_length = 70000\n", "over_length = 70000 "),
-            ("[measure]\nband_low_hz = -1.0\n", "band_low_hz = -1.0 "),
-            ("[measure]\nband_high_hz = inf\n", "band_high_hz = inf "),
-            ("[measure]\nfundamental_hz = 0.0\n", "fundamental_hz = 0.0 "),
-            ("[measure]\nfundamental_hz = nan\n", "fundamental_hz = nan "),
-            ("[measure]\nflat_tolerance = 0.5\n", "flat_tolerance = 0.5 "),
-            ("[measure]\nflat_tolerance = 0.0\n", "flat_tolerance = 0.0 "),
+            (
+                "[measure]\nmax_order = 1\n",
+                "2:13: [measure] max_order = 1 ",
+            ),
+            (
+                "[measure]\nmax_order = -3\n",
+                "2:13: [measure] max_order = -3 ",
+            ),
+            (
+                "[measure]\nover_length = 0\n",
+                "2:15: [measure] over_length = 0 ",
+            ),
+            (
+                "[measure]\nover_length = 70000\n",
+                "2:15: [measure] over_length = 70000 ",
+            ),
+            (
+                "[measure]\nband_low_hz = -1.0\n",
+                "2:15: [measure] band_low_hz = -1.0 ",
+            ),
+            (
+                "[measure]\nband_high_hz = inf\n",
+                "2:16: [measure] band_high_hz = inf ",
+            ),
+            (
+                "[measure]\nfundamental_hz = 0.0\n",
+                "2:18: [measure] fundamental_hz = 0.0 ",
+            ),
+            (
+                "[measure]\nfundamental_hz = nan\n",
+                "2:18: [measure] fundamental_hz = nan ",
+            ),
+            (
+                "[measure]\nflat_tolerance = 0.5\n",
+                "2:18: [measure] flat_tolerance = 0.5 ",
+            ),
+            (
+                "[measure]\nflat_tolerance = 0.0\n",
+                "2:18: [measure] flat_tolerance = 0.0 ",
+            ),
             (
                 "[measure]\nflat_min_level_dbfs = 0.0\n",
-                "flat_min_level_dbfs = 0.0 ",
+                "2:23: [measure] flat_min_level_dbfs = 0.0 ",
             ),
             (
                 "[measure]\nflat_min_level_dbfs = nan\n",
-                "flat_min_level_dbfs = nan ",
+                "2:23: [measure] flat_min_level_dbfs = nan ",
             ),
             (
                 "[scan]\nevery = \"0s\"\n",
-                "[scan] every = \"0s\" is not a duration",
+                "2:9: [scan] every = \"0s\" is not a duration",
             ),
             (
                 "[scan]\nevery = \"1.5\"\n",
-                "every = \"1.5\" is not a duration",
+                "2:9: [scan] every = \"1.5\" is not a duration",
             ),
             (
                 "[scan]\ntone_span = \"2h\"\n",
-                "tone_span = \"2h\" is not a duration",
+                "2:13: [scan] tone_span = \"2h\" is not a duration",
             ),
             (
                 "[scan]\ntone_span = \"0.5ms\"\n",
-                "tone_span = \"0.5ms\" is too short",
+                "2:13: [scan] tone_span = \"0.5ms\" is too short",
             ),
             (
                 "[scan]\nmerge_gap = \"-5ms\"\n",
-                "merge_gap = \"-5ms\" is not a duration",
+                "2:13: [scan] merge_gap = \"-5ms\" is not a duration",
             ),
             (
                 "[scan]\nmerge_gap = \"1441m\"\n",
-                "merge_gap = \"1441m\" is too long",
+                "2:13: [scan] merge_gap = \"1441m\" is too long",
             ),
         ];
         for (text, want) in cases {
             let e = err(text);
-            assert!(e.starts_with("config/x.toml: ["), "{e}");
-            assert!(e.contains(want), "{text:?}: {e} lacks {want}");
+            assert!(e.starts_with("config/x.toml:"), "{e}");
+            assert!(
+                e.starts_with(&format!("config/x.toml:{want}")),
+                "{text:?}: {e} does not start with {want}"
+            );
         }
         // The band pair is checked only when both edges are in the same file; the edge alone is
         // fine here (the merged result is checked with the command line).
         assert!(parse("[measure]\nband_high_hz = 20.0\n", Path::new("x")).is_ok());
         assert!(parse("[measure]\nband_high_hz = 0.0\n", Path::new("x")).is_err());
         assert!(parse("[measure]\nband_low_hz = 30000.0\n", Path::new("x")).is_ok());
+    }
+
+    /// One bad value in each table, deep in a file with comments, indents and other tables:
+    /// every error names the line and the column (in characters) where the value starts.
+    #[test]
+    fn bad_values_in_every_table_name_line_and_column() {
+        let head = "# bench preset, é\n[scan]\njson = true\n";
+        // [scan]: line 4; "  tone_span = " is 14 characters, so the value starts in column 15.
+        assert_eq!(
+            err(&format!("{head}  tone_span = \"2h\"\n")),
+            "config/x.toml:4:15: [scan] tone_span = \"2h\" is not a duration: \
+             expected a number with a unit ms, s or m, e.g. 500ms, 2s, 1.5s, 1m"
+        );
+        // [measure] after [scan]: line 7; "flat_tolerance   =   " is 21 characters.
+        assert_eq!(
+            err(&format!(
+                "{head}every = \"1s\"\n\n[measure]\nflat_tolerance   =   0.5\nmax_order = 10\n"
+            )),
+            "config/x.toml:7:22: [measure] flat_tolerance = 0.5 must be above 0 and below 0.5 \
+             (fraction of full scale)"
+        );
+        // [measure] before [scan], a whole number: line 3, after "over_length=".
+        assert_eq!(
+            err("[measure]\nmax_order = 10\nover_length=0\n[scan]\nevery = \"1s\"\n"),
+            "config/x.toml:3:13: [measure] over_length = 0 is outside 1..=65535"
+        );
+        // [watch] after both: line 10 (the head's three lines, then a blank one); "fps = " is 6
+        // characters.
+        assert_eq!(
+            err(&format!(
+                "{head}\n[measure]\nmax_order = 10\n\n[watch]\nmeter = \"vu\"\nfps = 45\n"
+            )),
+            "config/x.toml:10:7: [watch] fps = 45 is outside 1..=30"
+        );
+        // Through `load`, with the file's real name.
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("bench.toml");
+        std::fs::write(&path, "[scan]\n\n\nmerge_gap = \"1441m\"\n").unwrap();
+        let e = load(&path).unwrap_err().to_string();
+        assert_eq!(
+            e,
+            format!(
+                "{}:4:13: [scan] merge_gap = \"1441m\" is too long: at most 24 hours",
+                path.display()
+            )
+        );
     }
 
     #[test]

@@ -8,14 +8,17 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod compare;
 pub mod config;
 pub mod dsp;
 pub mod gen;
 pub mod live;
 pub mod logcmd;
+pub mod plot;
 pub mod scan;
 pub mod sink;
 pub mod source;
+pub mod sweep;
 pub mod ui;
 pub mod watch;
 
@@ -69,7 +72,14 @@ where
                 return ExitCode::from(watch::run_demo(&args, &mut io::stdout(), &mut err));
             }
         }
+        Command::Sweep(args) => {
+            // Steps are printed as they are measured.
+            drop(out);
+            let stdout = io::stdout();
+            return ExitCode::from(sweep::run_sweep(&args, &mut stdout.lock(), &mut err));
+        }
         Command::Devices(args) => run_devices(&args, &mut out, &mut err),
+        Command::Compare(args) => compare::run(&args, &mut out, &mut err),
         Command::Gen(args) => match gen::run(&args, &mut out) {
             Ok(()) => EXIT_OK,
             Err(e) => {
@@ -125,8 +135,18 @@ pub fn run_scan<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -
         }
     };
     let settings = plan.settings;
+    // `--svg`: one figure per input, named after it when there are several.
+    let svg = args.svg.as_deref();
+    let figures = match svg.map(|s| plot::per_file_paths(s, &args.files)) {
+        Some(Err(msg)) => {
+            let _ = writeln!(err, "brink scan: {msg}");
+            return EXIT_USAGE;
+        }
+        Some(Ok(paths)) => paths,
+        None => Vec::new(),
+    };
     let mut code = EXIT_OK;
-    for path in &args.files {
+    for (i, path) in args.files.iter().enumerate() {
         let written = match scan::scan_file(path, &settings) {
             Ok(report) => {
                 let r = if plan.json {
@@ -134,6 +154,14 @@ pub fn run_scan<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -
                 } else {
                     sink::text::write_scan(out, &report)
                 };
+                if let Some(fig) = figures.get(i) {
+                    let channel = args.channel.map(usize::from);
+                    let span = settings.tone_span_s;
+                    if let Err(e) = plot::scan_spectrum_svg(path, &report, channel, span, fig) {
+                        let _ = writeln!(err, "brink scan: {}: {e}", path.display());
+                        code = EXIT_FILE_ERROR;
+                    }
+                }
                 r.and_then(|()| out.flush())
             }
             Err(e) => {

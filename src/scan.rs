@@ -10,6 +10,7 @@ use crate::analysis::{ChannelAnalyzer, ChannelSettings};
 use crate::dsp::clip::ClipSettings;
 use crate::source::wav::{WavError, WavSource};
 use std::collections::VecDeque;
+use std::ops::Range;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{Condvar, Mutex, MutexGuard};
 use std::time::Duration;
@@ -140,6 +141,30 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
         channels,
         timeline,
     })
+}
+
+/// One channel's samples (`channel` from 1) over the frames `range` of a WAV file, full scale
+/// ±1: what a figure of the tone span draws. Shorter when the file ends first.
+pub fn read_channel(path: &Path, channel: usize, range: Range<u64>) -> Result<Vec<f64>, WavError> {
+    let mut src = WavSource::open(path)?;
+    let n_ch = src.info().channels;
+    let c = channel.saturating_sub(1).min(n_ch.saturating_sub(1));
+    let mut out = Vec::with_capacity((range.end.saturating_sub(range.start)) as usize);
+    let mut inter = Vec::with_capacity(BLOCK_FRAMES * n_ch);
+    let mut pos = 0u64;
+    while pos < range.end {
+        let n = src.read_frames(&mut inter, BLOCK_FRAMES)?;
+        if n == 0 {
+            break;
+        }
+        for (i, frame) in inter.chunks_exact(n_ch).enumerate() {
+            if range.contains(&(pos + i as u64)) {
+                out.push(f64::from(frame[c]));
+            }
+        }
+        pos += n as u64;
+    }
+    Ok(out)
 }
 
 /// One channel's analyser and how far it has got.

@@ -2,6 +2,9 @@
 //! power per bin, log-parabola peak interpolation and the median used for noise levels.
 
 use realfft::num_complex::Complex;
+use realfft::RealFftPlanner;
+
+use super::window::Window;
 
 /// Power per bin of an `n`-point real record's one-sided transform under a window with
 /// `Σw² = win_sq`: `|X[m]|²·2/(n·Σw²)`, with the DC and Nyquist bins not doubled, so that the sum
@@ -47,9 +50,68 @@ pub fn median(v: &mut [f64]) -> Option<f64> {
     Some(*m)
 }
 
+/// Peak-amplitude spectrum of a real record under `window`, for drawing: bin `m` (of `0..=n/2`,
+/// `m·rate/n` Hz) holds `2·|X_w[m]|/Σw` (DC and Nyquist not doubled), so a sine of peak
+/// amplitude A centred on a bin reads A, and `20·log10` of it is the sine's level in dBFS after
+/// AES17. Empty for an empty record.
+pub fn amplitude_spectrum(x: &[f64], window: Window) -> Vec<f64> {
+    let n = x.len();
+    if n == 0 {
+        return Vec::new();
+    }
+    let w = window.generate(n);
+    let gain: f64 = w.iter().sum();
+    let mut buf: Vec<f64> = x.iter().zip(&w).map(|(v, w)| v * w).collect();
+    let plan = RealFftPlanner::<f64>::new().plan_fft_forward(n);
+    let mut spec = plan.make_output_vec();
+    if plan.process(&mut buf, &mut spec).is_err() || gain <= 0.0 {
+        return vec![0.0; n / 2 + 1];
+    }
+    let mut out: Vec<f64> = spec.iter().map(|c| 2.0 * c.norm() / gain).collect();
+    if let Some(first) = out.first_mut() {
+        *first *= 0.5;
+    }
+    if n % 2 == 0 {
+        if let Some(last) = out.last_mut() {
+            *last *= 0.5;
+        }
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A sine of peak 0.5 centred on bin 100 reads 0.5 (−6.02 dBFS) under every window (the
+    /// coherent gain is divided out); a DC of 0.25 reads 0.25; half a bin off centre the 7-term
+    /// Blackman-Harris reads its scalloping loss, 0.4846 dB (shared/reference-values.md §1).
+    #[test]
+    fn amplitude_spectrum_is_calibrated_in_peak_amplitude() {
+        let n = 4096;
+        let sine = |bin: f64| -> Vec<f64> {
+            (0..n)
+                .map(|i| {
+                    0.25 + 0.5 * (2.0 * std::f64::consts::PI * bin * i as f64 / n as f64).sin()
+                })
+                .collect()
+        };
+        for w in [
+            Window::Hann,
+            Window::BlackmanHarris4,
+            Window::BlackmanHarris7,
+        ] {
+            let a = amplitude_spectrum(&sine(100.0), w);
+            assert_eq!(a.len(), n / 2 + 1);
+            assert!((a[100] - 0.5).abs() < 1e-9, "{w:?}: {}", a[100]);
+            assert!((a[0] - 0.25).abs() < 1e-9, "{w:?}: DC {}", a[0]);
+        }
+        let a = amplitude_spectrum(&sine(100.5), Window::BlackmanHarris7);
+        let peak = a[100].max(a[101]);
+        let loss_db = -20.0 * (peak / 0.5).log10();
+        assert!((loss_db - 0.4846).abs() < 0.002, "scalloping {loss_db}");
+        assert!(amplitude_spectrum(&[], Window::Hann).is_empty());
+    }
 
     /// Parseval: under a rectangular window (Σw² = N) the calibrated bins of a sine of amplitude
     /// A on a bin sum to its mean power A²/2.

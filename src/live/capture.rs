@@ -55,8 +55,10 @@ pub enum CaptureError {
         reason: String,
     },
     /// Nothing matches the device selector.
-    #[error("no input device matches '{sel}' on host {host}; `brink devices` lists them")]
+    #[error("no {dir} device matches '{sel}' on host {host}; `brink devices` lists them")]
     NoInput {
+        /// "input" or "output".
+        dir: &'static str,
         /// The selector as given.
         sel: String,
         /// The host's name.
@@ -64,10 +66,12 @@ pub enum CaptureError {
     },
     /// The selector matches more than one input device.
     #[error(
-        "'{sel}' matches several input devices on host {host}: {candidates}; \
+        "'{sel}' matches several {dir} devices on host {host}: {candidates}; \
          give its number or id from `brink devices`"
     )]
     Ambiguous {
+        /// "input" or "output".
+        dir: &'static str,
         /// The selector as given.
         sel: String,
         /// The host's name.
@@ -87,15 +91,19 @@ pub enum CaptureError {
         /// How many devices the host lists.
         count: usize,
     },
-    /// The chosen device cannot capture.
-    #[error("device '{device}' has no input channels; `brink devices` lists the inputs")]
+    /// The chosen device cannot capture (or play, for an output).
+    #[error("device '{device}' has no {dir} channels; `brink devices` lists the {dir}s")]
     NotInput {
+        /// "input" or "output".
+        dir: &'static str,
         /// The device's name.
         device: String,
     },
     /// No device was named and the host has no default input.
-    #[error("host {host} has no default input device; name one (`brink devices` lists them)")]
+    #[error("host {host} has no default {dir} device; name one (`brink devices` lists them)")]
     NoDefaultInput {
+        /// "input" or "output".
+        dir: &'static str,
         /// The host's name.
         host: String,
     },
@@ -529,6 +537,7 @@ pub fn choose_config(
         ranges.iter().filter(|r| r.channels() > 0).collect();
     if usable.is_empty() {
         return Err(CaptureError::NotInput {
+            dir: "input",
             device: device.to_owned(),
         });
     }

@@ -317,11 +317,52 @@ pub fn find_host(name: Option<&str>) -> Result<cpal::Host, CaptureError> {
 /// or `#3`), or a case-insensitive piece of its name or id that only one input device has. With
 /// no selector, the host's default input.
 pub fn find_input(host: &cpal::Host, sel: Option<&str>) -> Result<cpal::Device, CaptureError> {
+    find_device(host, sel, Direction::Input)
+}
+
+/// The output device `sel` names on `host`, chosen as [`find_input`] chooses inputs.
+pub fn find_output(host: &cpal::Host, sel: Option<&str>) -> Result<cpal::Device, CaptureError> {
+    find_device(host, sel, Direction::Output)
+}
+
+/// Which way a device is used.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Direction {
+    Input,
+    Output,
+}
+
+impl Direction {
+    fn name(self) -> &'static str {
+        match self {
+            Direction::Input => "input",
+            Direction::Output => "output",
+        }
+    }
+
+    fn supported_by(self, d: &cpal::Device) -> bool {
+        match self {
+            Direction::Input => d.supports_input(),
+            Direction::Output => d.supports_output(),
+        }
+    }
+}
+
+fn find_device(
+    host: &cpal::Host,
+    sel: Option<&str>,
+    dir: Direction,
+) -> Result<cpal::Device, CaptureError> {
     let host_name = host.id().to_string();
     let Some(sel) = sel.map(str::trim).filter(|s| !s.is_empty()) else {
-        return host
-            .default_input_device()
-            .ok_or(CaptureError::NoDefaultInput { host: host_name });
+        let default = match dir {
+            Direction::Input => host.default_input_device(),
+            Direction::Output => host.default_output_device(),
+        };
+        return default.ok_or(CaptureError::NoDefaultInput {
+            dir: dir.name(),
+            host: host_name,
+        });
     };
     let devices: Vec<cpal::Device> = host
         .devices()
@@ -342,10 +383,11 @@ pub fn find_input(host: &cpal::Host, sel: Option<&str>) -> Result<cpal::Device, 
         .collect();
     let pick = |i: usize| -> Result<cpal::Device, CaptureError> {
         let d = &devices[i];
-        if d.supports_input() {
+        if dir.supported_by(d) {
             Ok(d.clone())
         } else {
             Err(CaptureError::NotInput {
+                dir: dir.name(),
                 device: named[i].name.clone(),
             })
         }
@@ -354,18 +396,20 @@ pub fn find_input(host: &cpal::Host, sel: Option<&str>) -> Result<cpal::Device, 
         let inputs: Vec<usize> = hits
             .iter()
             .copied()
-            .filter(|&i| devices[i].supports_input())
+            .filter(|&i| dir.supported_by(&devices[i]))
             .collect();
         match (inputs.as_slice(), hits.first()) {
             ([one], _) => pick(*one),
             ([], Some(&first)) => pick(first),
             ([], None) => Err(CaptureError::NoInput {
+                dir: dir.name(),
                 sel: sel.to_owned(),
                 host: host_name.clone(),
             }),
             (many, _) => {
                 let list: Vec<String> = many.iter().map(|&i| named[i].label()).collect();
                 Err(CaptureError::Ambiguous {
+                    dir: dir.name(),
                     sel: sel.to_owned(),
                     host: host_name.clone(),
                     candidates: list.join(", "),

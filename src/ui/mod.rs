@@ -47,9 +47,6 @@ pub struct ScreenOptions {
     pub snapshot_dir: PathBuf,
 }
 
-/// Channels a page key moves the focus by.
-const PAGE: isize = 8;
-
 /// Apply a key to the dashboard.
 pub fn handle_key(d: &mut Dashboard, key: KeyEvent, snapshot_dir: &Path) -> Action {
     if key.kind == KeyEventKind::Release {
@@ -64,8 +61,8 @@ pub fn handle_key(d: &mut Dashboard, key: KeyEvent, snapshot_dir: &Path) -> Acti
         KeyCode::Char('?') => d.help = true,
         KeyCode::Up | KeyCode::Char('k') => d.move_focus(-1),
         KeyCode::Down | KeyCode::Char('j') => d.move_focus(1),
-        KeyCode::PageUp => d.move_focus(-PAGE),
-        KeyCode::PageDown => d.move_focus(PAGE),
+        KeyCode::PageUp => d.move_focus(-(d.page.max(1) as isize)),
+        KeyCode::PageDown => d.move_focus(d.page.max(1) as isize),
         KeyCode::Char(' ') => d.toggle_freeze(),
         KeyCode::Char('r') => d.reset(),
         KeyCode::Char('a') => d.store(0),
@@ -133,10 +130,7 @@ where
         let gap = if urgent { urgent_gap } else { frame_gap };
         let due = last_draw.map_or(now, |t| t + gap);
         if d.dirty && now >= due {
-            terminal
-                .draw(|f| view::draw(f, d, opts.theme))
-                .map_err(Into::into)?;
-            d.dirty = false;
+            draw_frame(terminal, d, opts.theme).map_err(Into::into)?;
             urgent = false;
             last_draw = Some(Instant::now());
         }
@@ -183,6 +177,19 @@ where
             }
         }
     }
+}
+
+/// Draw one frame of `d` and note what the screen holds: the page keys then move the focus by
+/// one meter page of this screen.
+pub fn draw_frame<B: Backend>(
+    terminal: &mut Terminal<B>,
+    d: &mut Dashboard,
+    theme: Theme,
+) -> Result<(), B::Error> {
+    let drawn = terminal.draw(|f| view::draw(f, d, theme))?;
+    d.page = view::meter_page(d, drawn.area);
+    d.dirty = false;
+    Ok(())
 }
 
 /// Updates worth drawing before the next regular frame.
@@ -253,5 +260,48 @@ mod tests {
         );
         let msg = save_snapshots(&d, &dir);
         assert!(msg.starts_with("nothing to save"), "{msg}");
+    }
+
+    /// PgUp/PgDn move the focus by the meter page the screen last showed: 36 channels of 64 in
+    /// compact cells on 80x24, all 64 on a big screen.
+    #[test]
+    fn page_keys_move_by_the_page_on_screen() {
+        use ratatui::backend::TestBackend;
+        let dir = std::env::temp_dir();
+        let mut d = Dashboard::new(
+            SourceMeta {
+                host: "test".into(),
+                device: "rack".into(),
+                sample_rate_hz: 48_000,
+                channels: (1..=64).collect(),
+            },
+            "live",
+            Ballistics::SamplePeak,
+            1.0,
+        );
+        let mut t = Terminal::new(TestBackend::new(80, 24)).expect("terminal");
+        draw_frame(&mut t, &mut d, Theme { color: false }).expect("draw");
+        assert_eq!(d.page, 36);
+        assert!(!d.dirty);
+        handle_key(&mut d, key(KeyCode::PageDown), &dir);
+        assert_eq!(d.focus, 36, "the first channel of page 2");
+        handle_key(&mut d, key(KeyCode::PageDown), &dir);
+        assert_eq!(d.focus, 63, "clamped to the last channel");
+        handle_key(&mut d, key(KeyCode::PageUp), &dir);
+        assert_eq!(d.focus, 27);
+        handle_key(&mut d, key(KeyCode::PageUp), &dir);
+        assert_eq!(d.focus, 0);
+        // Page 2 is drawn when the focus is on it.
+        handle_key(&mut d, key(KeyCode::PageDown), &dir);
+        draw_frame(&mut t, &mut d, Theme { color: false }).expect("draw");
+        let row: String = (0..80)
+            .map(|x| t.backend().buffer()[(x, 2)].symbol().to_string())
+            .collect();
+        assert!(row.starts_with("▶37 "), "{row}");
+        // A screen that holds every channel: no page of 36 any more.
+        t.backend_mut().resize(200, 60);
+        t.autoresize().expect("resize");
+        draw_frame(&mut t, &mut d, Theme { color: false }).expect("draw");
+        assert_eq!(d.page, 70, "ten columns of seven lines");
     }
 }

@@ -333,6 +333,9 @@ pub struct Dashboard {
     pub message: Option<String>,
     /// Something changed since the last draw.
     pub dirty: bool,
+    /// Channels a page key moves the focus by: one meter page as last drawn (the screen thread
+    /// sets it from the screen's size and layout).
+    pub page: usize,
 }
 
 impl Dashboard {
@@ -362,6 +365,7 @@ impl Dashboard {
             onset_pct,
             message: None,
             dirty: true,
+            page: 8,
         }
     }
 

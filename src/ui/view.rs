@@ -2,9 +2,12 @@
 //! backend so tests draw into `TestBackend` exactly as the terminal does.
 //!
 //! Screen, top to bottom: a title line; the meters (one line per channel: level bar with
-//! peak-hold marker, peak, true peak, headroom, clip lamp); the focused channel's harmonic bars
-//! and figures (or the A/B comparison); the recent clips; a status line. Meaning never rests on
-//! colour alone: odd and even harmonics differ by glyph, the lamps by symbol and word.
+//! peak-hold marker, peak, true peak, headroom, clip lamp; or, when the channels would not fit
+//! one a line, compact cells side by side: number, small bar, peak, lamp symbol, paged beyond
+//! one screenful); the focused channel's harmonic bars and figures (or the A/B comparison: bars
+//! per harmonic side by side and their differences); the recent clips; a status line. Meaning
+//! never rests on colour alone: odd and even harmonics differ by glyph, the lamps by symbol and
+//! word.
 
 use ratatui::buffer::Buffer;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -102,11 +105,8 @@ pub fn render(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
             .render(area, buf);
         return;
     }
-    let shown = d.shown();
-    let n = shown.channels.len() as u16;
-    // Rows: title 1, meters (header + lines), middle (≥ 10), clips (≥ 2), status 1.
-    let spare = area.height.saturating_sub(1 + 1 + 10 + 2 + 1);
-    let meter_lines = n.clamp(1, spare.max(1));
+    let grid = meter_grid(d, area);
+    let meter_lines = grid.rows;
     let middle = (area.height.saturating_sub(1 + 1 + meter_lines + 1 + 2)).clamp(10, 14);
     let [title, meters, mid, clips, status] = Layout::vertical([
         Constraint::Length(1),
@@ -117,7 +117,7 @@ pub fn render(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
     ])
     .areas(area);
     render_title(d, theme, title, buf);
-    render_meters(d, theme, meters, buf);
+    render_meters(d, theme, grid, meters, buf);
     match d.view {
         View::Harmonics => render_focus(d, theme, mid, buf),
         View::Compare => render_compare(d, theme, mid, buf),
@@ -144,17 +144,8 @@ fn render_title(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
     };
     let tail = format!(" · {} Hz · {} ch", m.sample_rate_hz, m.channels.len());
     let badge = " brink ";
-    let room = (area.width as usize).saturating_sub(
-        badge.len() + right.chars().count() + tail.chars().count() + d.mode.len() + 3,
-    );
-    let source: String = if source.chars().count() > room {
-        let mut s: String = source.chars().take(room.saturating_sub(1)).collect();
-        s.push('…');
-        s
-    } else {
-        source
-    };
-    let left = format!(" {}: {source}{tail}", d.mode);
+    let avail = (area.width as usize).saturating_sub(badge.len() + right.chars().count());
+    let left = title_left(&d.mode, &source, &tail, avail);
     let pad = (area.width as usize)
         .saturating_sub(badge.len() + left.chars().count() + right.chars().count());
     let spans = vec![
@@ -174,6 +165,43 @@ fn render_title(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
         ),
     ];
     Line::from(spans).render(area, buf);
+}
+
+/// The title's left part, ` MODE: SOURCE · RATE · CHANNELS`, in `avail` columns if it can be:
+/// the source is cut first (its end becomes `…`), then dropped and the mode shortened in the
+/// middle (a followed log's path keeps its first word and its file name), so that the meters,
+/// the freeze mark and the stream time on the right stay in view.
+fn title_left(mode: &str, source: &str, tail: &str, avail: usize) -> String {
+    let width = |s: &str| s.chars().count();
+    let full = format!(" {mode}: {source}{tail}");
+    if width(&full) <= avail {
+        return full;
+    }
+    let room = avail.saturating_sub(width(mode) + width(tail) + 3);
+    if room >= 2 {
+        let cut: String = source.chars().take(room - 1).collect();
+        return format!(" {mode}: {cut}…{tail}");
+    }
+    let room = avail.saturating_sub(width(tail) + 1);
+    format!(" {}{tail}", shorten_middle(mode, room))
+}
+
+/// `s` in at most `max` characters: its first word, `…`, and as much of its end as fits; just
+/// `…` and the end when the first word would leave no room for the last path component (a
+/// file's name matters more than the word before it).
+fn shorten_middle(s: &str, max: usize) -> String {
+    let n = s.chars().count();
+    if n <= max {
+        return s.to_string();
+    }
+    let last = s.rsplit(['/', ' ']).next().map_or(0, |p| p.chars().count());
+    let head: String = match s.find(' ') {
+        Some(i) if s[..=i].chars().count() + 1 + last <= max => s[..=i].to_string(),
+        _ => String::new(),
+    };
+    let keep = max.saturating_sub(head.chars().count() + 1);
+    let end: String = s.chars().skip(n - keep.min(n)).collect();
+    format!("{head}…{end}")
 }
 
 /// One channel's meter line.
@@ -326,7 +354,70 @@ pub fn render_bar(
     }
 }
 
-fn render_meters(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
+/// Narrowest compact meter cell (the focus mark, the number, a small bar, the peak, the lamp
+/// symbol and a space between cells).
+pub const COMPACT_CELL_W: u16 = 20;
+
+/// How the meters sit on the screen: one full line per channel when every channel has a line,
+/// else compact cells in columns (read down, then across); paged beyond one screenful.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct MeterGrid {
+    /// Compact cells rather than full lines.
+    pub compact: bool,
+    /// Meter lines under the header.
+    pub rows: u16,
+    /// Cells side by side on a line (1 for full lines).
+    pub cols: u16,
+}
+
+impl MeterGrid {
+    /// The layout for `n` channels in `width` columns with room for `max_rows` meter lines.
+    pub fn new(n: usize, width: u16, max_rows: u16) -> Self {
+        let max_rows = max_rows.max(1);
+        let cols = width / COMPACT_CELL_W;
+        if n <= usize::from(max_rows) || cols < 2 {
+            return MeterGrid {
+                compact: false,
+                rows: n.clamp(1, usize::from(max_rows)) as u16,
+                cols: 1,
+            };
+        }
+        MeterGrid {
+            compact: true,
+            rows: n.div_ceil(usize::from(cols)).min(usize::from(max_rows)) as u16,
+            cols,
+        }
+    }
+
+    /// Channels on one page.
+    pub fn page(self) -> usize {
+        usize::from(self.rows) * usize::from(self.cols)
+    }
+
+    /// Index of the first channel of the page that holds channel index `focus`.
+    pub fn first(self, focus: usize) -> usize {
+        let page = self.page().max(1);
+        (focus / page) * page
+    }
+}
+
+/// The meter layout of `d` on a screen of `area`: the meters get what the title, the middle view
+/// (at least 10 lines), the clips (2) and the status line leave.
+pub fn meter_grid(d: &Dashboard, area: Rect) -> MeterGrid {
+    let spare = area.height.saturating_sub(1 + 1 + 10 + 2 + 1);
+    MeterGrid::new(d.shown().channels.len(), area.width, spare)
+}
+
+/// Channels a page key moves the focus by on a screen of `area`: one meter page.
+pub fn meter_page(d: &Dashboard, area: Rect) -> usize {
+    meter_grid(d, area).page().max(1)
+}
+
+fn render_meters(d: &Dashboard, theme: Theme, grid: MeterGrid, area: Rect, buf: &mut Buffer) {
+    if grid.compact {
+        render_compact_meters(d, theme, grid, area, buf);
+        return;
+    }
     let shown = d.shown();
     let rows = area.height.saturating_sub(1) as usize;
     let n = shown.channels.len();
@@ -371,6 +462,150 @@ fn render_meters(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
         };
         (&w).render(line, buf);
     }
+}
+
+/// Compact meters: a header naming the page and the focused channel's figures (peak, true
+/// peak, headroom, the whole lamp), then [`CompactMeter`] cells down the columns.
+fn render_compact_meters(
+    d: &Dashboard,
+    theme: Theme,
+    grid: MeterGrid,
+    area: Rect,
+    buf: &mut Buffer,
+) {
+    let shown = d.shown();
+    let n = shown.channels.len();
+    if n == 0 || area.width == 0 || area.height == 0 {
+        return;
+    }
+    let first = grid.first(d.focus).min(n - 1);
+    let last = (first + grid.page()).min(n);
+    let page = format!(
+        " ch {}-{} of {n}{}",
+        shown.channels[first].channel,
+        shown.channels[last - 1].channel,
+        if n > grid.page() { ", PgUp/PgDn" } else { "" }
+    );
+    let head_style = theme.fg(Color::Gray).add_modifier(Modifier::BOLD);
+    let right = area.x + area.width;
+    let mut x = put(buf, area.x, area.y, right, &page, head_style);
+    if let Some(c) = d.focused() {
+        let figures = format!(
+            " · ▶ {}: peak {} true {} room {} ",
+            c.channel,
+            num(c.peak_dbfs, 1, 1),
+            num(c.true_peak_dbtp, 1, 1),
+            num(c.headroom_db(), 1, 1)
+        );
+        x = put(buf, x, area.y, right, &figures, head_style);
+        let (text, style) = lamp(c, shown.now_s, theme);
+        put(buf, x, area.y, right, &text, style);
+    }
+    let widest = shown.channels[first..last]
+        .iter()
+        .map(|c| c.channel.to_string().len())
+        .max()
+        .unwrap_or(1)
+        .max(2);
+    let cell_w = area.width / grid.cols.max(1);
+    let rows = usize::from(grid.rows.max(1));
+    for (i, c) in shown.channels[first..last].iter().enumerate() {
+        let (col, row) = ((i / rows) as u16, (i % rows) as u16);
+        if row + 1 >= area.height {
+            continue;
+        }
+        let cell = Rect::new(
+            area.x + col * cell_w,
+            area.y + 1 + row,
+            cell_w.saturating_sub(1),
+            1,
+        );
+        (&CompactMeter {
+            channel: c,
+            ballistics: d.ballistics,
+            focused: first + i == d.focus,
+            number_width: widest,
+            theme,
+        })
+            .render(cell, buf);
+    }
+}
+
+/// One channel in a compact cell: `▶12 ██████▌│·  -6.0 ▲`: the focus mark, the number, the level
+/// bar (as [`render_bar`], with the peak-hold marker), the highest sample peak since the reset
+/// and the lamp's symbol (`◆` overs, `▲` flat tops, `·` none; reversed while clipping).
+#[derive(Debug, Clone, Copy)]
+pub struct CompactMeter<'a> {
+    /// The channel.
+    pub channel: &'a ChannelView,
+    /// Which needle.
+    pub ballistics: Ballistics,
+    /// In focus.
+    pub focused: bool,
+    /// Width of the channel number (the widest on the page, so the bars line up).
+    pub number_width: usize,
+    /// Colours.
+    pub theme: Theme,
+}
+
+impl Widget for &CompactMeter<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        if area.width == 0 || area.height == 0 {
+            return;
+        }
+        let c = self.channel;
+        let right = area.x + area.width;
+        let head = format!(
+            "{}{:>w$} ",
+            if self.focused { '▶' } else { ' ' },
+            c.channel,
+            w = self.number_width
+        );
+        let head_style = if self.focused {
+            Style::default().add_modifier(Modifier::BOLD)
+        } else {
+            Style::default()
+        };
+        let peak = format!(" {} ", compact_db(c.peak_dbfs));
+        let (lamp_text, lamp_style) = lamp(c, 0.0, self.theme);
+        let symbol: String = lamp_text.chars().take(1).collect();
+        let head_w = head.chars().count() as u16;
+        let tail_w = peak.chars().count() as u16 + 1;
+        let bar_w = area.width.saturating_sub(head_w + tail_w);
+        let x = put(buf, area.x, area.y, right, &head, head_style);
+        let idx = Ballistics::ALL
+            .iter()
+            .position(|b| *b == self.ballistics)
+            .unwrap_or(0);
+        render_bar(
+            c.readings[idx],
+            c.hold.map(|h| h.0),
+            self.theme,
+            Rect::new(x, area.y, bar_w, 1),
+            buf,
+        );
+        let x = put(buf, x + bar_w, area.y, right, &peak, Style::default());
+        put(buf, x, area.y, right, &symbol, lamp_style);
+    }
+}
+
+/// A level in five cells: one decimal down to -99.9, whole numbers below.
+fn compact_db(v: Option<f64>) -> String {
+    match v {
+        Some(x) if x.is_finite() && x <= -99.95 => format!("{x:>5.0}"),
+        _ => num(v, 5, 1),
+    }
+}
+
+/// Write `text` at (`x`, `y`), cut at column `right`; returns the column after it.
+fn put(buf: &mut Buffer, x: u16, y: u16, right: u16, text: &str, style: Style) -> u16 {
+    let room = right.saturating_sub(x);
+    let text = truncate(text, room);
+    let w = text.chars().count() as u16;
+    if w > 0 {
+        buf.set_string(x, y, &text, style);
+    }
+    x + w
 }
 
 fn truncate(s: &str, width: u16) -> String {
@@ -575,13 +810,17 @@ fn render_onset(d: &Dashboard, c: &ChannelView, theme: Theme, area: Rect, buf: &
 }
 
 fn render_compare(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
-    let block = Block::default()
-        .borders(Borders::TOP)
-        .title(Line::from(" compare A | B ").style(theme.fg(Color::Cyan)));
+    let block = Block::default().borders(Borders::TOP).title(
+        Line::from(format!(
+            " compare A | B  (dBc, {} to 0; {ODD_GLYPH} odd, {EVEN_GLYPH} even) ",
+            BARS_FLOOR_DBC as i32
+        ))
+        .style(theme.fg(Color::Cyan)),
+    );
     let inner = block.inner(area);
     block.render(area, buf);
     let [a, b] = [&d.snapshots[0], &d.snapshots[1]];
-    if a.is_none() || b.is_none() {
+    let (Some(a), Some(b)) = (a, b) else {
         Paragraph::new(vec![
             Line::from("store a fingerprint as A (key a) and another as B (key b),"),
             Line::from("or load one with --compare FILE; then this view sets them side by side."),
@@ -594,47 +833,112 @@ fn render_compare(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
         .wrap(Wrap { trim: true })
         .render(inner, buf);
         return;
-    }
-    let (Some(a), Some(b)) = (a, b) else {
-        return;
     };
-    let mut lines = vec![Line::from(vec![
-        Span::styled(
-            format!("{:<4}", "H"),
-            Style::default().add_modifier(Modifier::BOLD),
-        ),
-        Span::styled(
-            format!(
-                "{:>8} {:>8} {:>7}   A: {}  B: {}",
-                "A dBc", "B dBc", "B-A", a.label, b.label
-            ),
-            Style::default().add_modifier(Modifier::BOLD),
-        ),
-    ])];
-    for k in 2..=BAR_ORDERS {
-        let (la, lb) = (a.level_dbc(k), b.level_dbc(k));
-        let diff = la.zip(lb).map(|(x, y)| y - x);
-        let tag = if k % 2 == 1 { ODD_GLYPH } else { EVEN_GLYPH };
-        lines.push(Line::from(format!(
-            "{tag}{k:<3}{} {} {}",
-            num(la, 8, 1),
-            num(lb, 8, 1),
-            diff.map_or_else(|| format!("{:>7}", "--"), |v| format!("{v:>+7.1}"))
-        )));
-    }
+    let bars_h = (BAR_ORDERS as u16).min(inner.height);
+    let [bars, rest] =
+        Layout::vertical([Constraint::Length(bars_h), Constraint::Min(0)]).areas(inner);
+    (&CompareBars { a, b, theme }).render(bars, buf);
     let (da, db) = (&a.distortion, &b.distortion);
-    lines.push(Line::from(format!(
-        "THD {} / {} %   odd/even {} / {} dB   fall-off {} / {}",
-        num(da.thd_pct, 1, 2),
-        num(db.thd_pct, 1, 2),
-        num(da.odd_even_db, 1, 0),
-        num(db.odd_even_db, 1, 0),
-        num(da.falloff_db_per_octave, 1, 1),
-        num(db.falloff_db_per_octave, 1, 1)
-    )));
-    lines.push(Line::from(format!("A: {}", a.character())));
-    lines.push(Line::from(format!("B: {}", b.character())));
-    Paragraph::new(lines).render(inner, buf);
+    let lines = vec![
+        Line::from(format!(
+            "THD {} / {} %   odd/even {} / {} dB   fall-off {} / {}",
+            num(da.thd_pct, 1, 2),
+            num(db.thd_pct, 1, 2),
+            num(da.odd_even_db, 1, 0),
+            num(db.odd_even_db, 1, 0),
+            num(da.falloff_db_per_octave, 1, 1),
+            num(db.falloff_db_per_octave, 1, 1)
+        )),
+        Line::from(format!("A: {}", a.character())),
+        Line::from(format!("B: {}", b.character())),
+    ];
+    Paragraph::new(lines).render(rest, buf);
+}
+
+/// Fingerprints A and B side by side, a line per harmonic H2..H10 under a header: A's bar and
+/// level, B's bar and level, and the difference B − A in dB. The bars run from
+/// [`BARS_FLOOR_DBC`] at the left to 0 dBc at the right, in [`ODD_GLYPH`] for odd orders and
+/// [`EVEN_GLYPH`] for even ones, and the order's tag in the first column carries the same glyph.
+#[derive(Debug, Clone, Copy)]
+pub struct CompareBars<'a> {
+    /// Snapshot A.
+    pub a: &'a Fingerprint,
+    /// Snapshot B.
+    pub b: &'a Fingerprint,
+    /// Colours.
+    pub theme: Theme,
+}
+
+/// Columns of a comparison line besides the two bars: tag 4, A's level 7, " │ " 3, B's level 7,
+/// difference 7.
+const COMPARE_FIXED_W: u16 = 4 + 7 + 3 + 7 + 7;
+
+impl CompareBars<'_> {
+    /// Width of each of the two bars in `width` columns.
+    pub fn bar_width(width: u16) -> u16 {
+        width.saturating_sub(COMPARE_FIXED_W) / 2
+    }
+}
+
+/// A horizontal harmonic bar: `glyph` over the share of `width` that `level_dbc` reaches on the
+/// [`BARS_FLOOR_DBC`]..0 scale (rounded to whole cells), spaces after it.
+fn harmonic_hbar(level_dbc: Option<f64>, glyph: char, width: u16) -> String {
+    let w = usize::from(width);
+    let filled = level_dbc.map_or(0, |l| {
+        (((l - BARS_FLOOR_DBC) / -BARS_FLOOR_DBC).clamp(0.0, 1.0) * w as f64).round() as usize
+    });
+    let mut s: String = std::iter::repeat_n(glyph, filled).collect();
+    s.extend(std::iter::repeat_n(' ', w - filled));
+    s
+}
+
+impl Widget for &CompareBars<'_> {
+    fn render(self, area: Rect, buf: &mut Buffer) {
+        if area.width == 0 || area.height == 0 {
+            return;
+        }
+        let right = area.x + area.width;
+        let bar_w = CompareBars::bar_width(area.width);
+        let col_w = usize::from(bar_w) + 7;
+        let bold = Style::default().add_modifier(Modifier::BOLD);
+        let label = |name: &str, f: &Fingerprint| {
+            let text = format!("{name}: {}", f.label);
+            format!("{:<col_w$}", truncate(&text, col_w as u16))
+        };
+        let header = format!(
+            "{:<4}{} │ {}{:>7}",
+            "H",
+            label("A", self.a),
+            label("B", self.b),
+            "B-A"
+        );
+        put(buf, area.x, area.y, right, &header, bold);
+        for k in 2..=BAR_ORDERS {
+            let y = area.y + (k as u16 - 1);
+            if y >= area.y + area.height {
+                break;
+            }
+            let odd = k % 2 == 1;
+            let glyph = if odd { ODD_GLYPH } else { EVEN_GLYPH };
+            let style = self.theme.fg(if odd {
+                Color::LightRed
+            } else {
+                Color::LightBlue
+            });
+            let (la, lb) = (self.a.level_dbc(k), self.b.level_dbc(k));
+            let diff = la.zip(lb).map_or_else(
+                || format!("{:>7}", "--"),
+                |(x, y)| format!("{:>+7.1}", y - x),
+            );
+            let mut x = put(buf, area.x, y, right, &format!("{glyph}{k:<3}"), style);
+            x = put(buf, x, y, right, &harmonic_hbar(la, glyph, bar_w), style);
+            x = put(buf, x, y, right, &num(la, 7, 1), Style::default());
+            x = put(buf, x, y, right, " │ ", self.theme.fg(Color::DarkGray));
+            x = put(buf, x, y, right, &harmonic_hbar(lb, glyph, bar_w), style);
+            x = put(buf, x, y, right, &num(lb, 7, 1), Style::default());
+            put(buf, x, y, right, &diff, Style::default());
+        }
+    }
 }
 
 fn render_clips(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
@@ -750,11 +1054,11 @@ fn render_help(theme: Theme, area: Rect, buf: &mut Buffer) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::analysis::report::ClipEvent;
+    use crate::analysis::report::{ClipEvent, DistortionReport};
     use crate::live::engine::{Engine, EngineSettings, MeterFrame};
     use crate::live::session::SourceMeta;
     use crate::ui::feed::from_live;
-    use crate::ui::model::Update;
+    use crate::ui::model::{harmonic_report, Update};
     use ratatui::backend::TestBackend;
     use ratatui::Terminal;
 
@@ -879,6 +1183,31 @@ mod tests {
             .render(Rect::ZERO, &mut buf);
         render_bar(Some(-3.0), Some(-1.0), COLOUR, Rect::ZERO, &mut buf);
         render(&d, COLOUR, Rect::ZERO, &mut buf);
+        (&CompactMeter {
+            channel: c,
+            ballistics: Ballistics::Vu,
+            focused: true,
+            number_width: 2,
+            theme: COLOUR,
+        })
+            .render(Rect::ZERO, &mut buf);
+        let (a, b) = (fingerprint("A", &[(3, -20.0)]), fingerprint("B", &[]));
+        (&CompareBars {
+            a: &a,
+            b: &b,
+            theme: COLOUR,
+        })
+            .render(Rect::ZERO, &mut buf);
+        // Many channels (compact cells) and the comparison, at every size too.
+        let mut many = many_channels(64);
+        many.snapshots = [Some(a), Some(b)];
+        for (w, h) in [(1, 1), (40, 12), (41, 13), (59, 16), (80, 24), (200, 60)] {
+            for view in [View::Harmonics, View::Compare] {
+                many.view = view;
+                let mut t = Terminal::new(TestBackend::new(w, h)).expect("terminal");
+                t.draw(|f| draw(f, &many, COLOUR)).expect("draw");
+            }
+        }
     }
 
     #[test]
@@ -942,6 +1271,459 @@ mod tests {
         let (_, style) = lamp(&d.shown().channels[0], 10.0, PLAIN);
         assert!(!style.add_modifier.contains(Modifier::REVERSED));
         assert_eq!(style.fg, None, "NO_COLOR: no colours");
+    }
+
+    /// A fingerprint made by hand: a 1 kHz tone at -6 dBFS with the given harmonics (order, dBc).
+    fn fingerprint(label: &str, levels: &[(usize, f64)]) -> Fingerprint {
+        Fingerprint {
+            label: label.into(),
+            distortion: DistortionReport {
+                fundamental_hz: 1000.0,
+                fundamental_dbfs: Some(-6.0),
+                thd_pct: Some(3.2),
+                thd_db: None,
+                thd_n_db: Some(-29.5),
+                thd_n_pct: 3.35,
+                sinad_db: Some(29.5),
+                enob_bits: None,
+                odd_even_db: Some(-18.0),
+                falloff_db_per_octave: Some(-12.0),
+                noise_floor_dbc: Some(-140.0),
+                span_start_s: 0.0,
+                span_end_s: 1.0,
+                harmonics: levels
+                    .iter()
+                    .map(|&(k, l)| harmonic_report(k, 1000.0, Some(l), 0.0, Some(-140.0)))
+                    .collect(),
+            },
+            report: None,
+        }
+    }
+
+    /// The peak (dBFS) channel `ch` of [`many_channels`] is given: spread over the scale.
+    fn spread_db(ch: usize) -> f64 {
+        -2.0 - ((ch * 7) % 50) as f64
+    }
+
+    /// `n` channels as a 64-input stage rack would feed them, at 61.5 s: peaks spread over the
+    /// scale, channel 7 in an over right now, channel 23 after a flat-top episode, channel 41 (a
+    /// later page) after overs; channel 3 in focus with a tone.
+    fn many_channels(n: usize) -> Dashboard {
+        let mut d = Dashboard::new(
+            SourceMeta {
+                host: "jack".into(),
+                device: "stage rack".into(),
+                sample_rate_hz: 48_000,
+                channels: (1..=n).collect(),
+            },
+            "live",
+            Ballistics::SamplePeak,
+            1.0,
+        );
+        // The clips in the order they happened.
+        for (channel, kind, start_s, level) in [
+            (41, ClipKind::Over, 40.2, 0.0),
+            (23, ClipKind::FlatTop, 58.2, -4.1),
+        ] {
+            d.apply(Update::ClipStarted {
+                channel,
+                kind,
+                t_s: start_s,
+                level_dbfs: Some(level),
+                count: true,
+            });
+            d.apply(Update::Clip {
+                channel,
+                event: ClipEvent {
+                    kind,
+                    start_s,
+                    end_s: start_s + 0.7,
+                    level_dbfs: Some(level),
+                    runs: 12,
+                    samples: 640,
+                },
+            });
+        }
+        d.apply(Update::ClipStarted {
+            channel: 7,
+            kind: ClipKind::Over,
+            t_s: 61.4,
+            level_dbfs: Some(0.0),
+            count: true,
+        });
+        let channels = (1..=n)
+            .map(|ch| {
+                let peak = if ch == 7 {
+                    1.0
+                } else {
+                    10f64.powf(spread_db(ch) / 20.0)
+                };
+                MeterFrame {
+                    channel: ch,
+                    sample_peak: peak,
+                    true_peak: peak * 1.02,
+                    readings: [peak * 0.7; 4],
+                }
+            })
+            .collect();
+        d.apply(Update::Meters {
+            t_s: 61.5,
+            channels,
+        });
+        d.apply(Update::Tone {
+            t_s: 61.0,
+            channel: 3,
+            distortion: Some(
+                fingerprint(
+                    "",
+                    &[(2, -52.0), (3, -31.0), (4, -70.0), (5, -44.0), (7, -58.0)],
+                )
+                .distortion,
+            ),
+        });
+        d.apply(Update::Health {
+            xruns: 0,
+            load: Some(0.043),
+        });
+        d.move_focus(2);
+        d
+    }
+
+    /// Line `y` of a buffer, as text.
+    fn row(buf: &Buffer, y: u16) -> String {
+        (0..buf.area.width)
+            .map(|x| buf[(x, y)].symbol().to_string())
+            .collect()
+    }
+
+    #[test]
+    fn meters_go_compact_when_channels_would_not_fit_one_a_line() {
+        let g = |n, w, rows| MeterGrid::new(n, w, rows);
+        let full = |rows| MeterGrid {
+            compact: false,
+            rows,
+            cols: 1,
+        };
+        let compact = |rows, cols| MeterGrid {
+            compact: true,
+            rows,
+            cols,
+        };
+        // 80x24 leaves 9 meter lines: up to 9 channels one a line, more in 20-column cells.
+        assert_eq!(g(4, 80, 9), full(4));
+        assert_eq!(g(9, 80, 9), full(9));
+        assert_eq!(g(0, 80, 9), full(1));
+        assert_eq!(g(10, 80, 9), compact(3, 4));
+        assert_eq!(g(16, 80, 9), compact(4, 4));
+        // 64 channels: 36 on a page (9 lines of 4), the rest a page further.
+        let many = g(64, 80, 9);
+        assert_eq!(many, compact(9, 4));
+        assert_eq!(many.page(), 36);
+        assert_eq!(many.first(0), 0);
+        assert_eq!(many.first(35), 0);
+        assert_eq!(many.first(36), 36);
+        assert_eq!(many.first(63), 36);
+        // A big screen holds them all; a narrow one falls back to paged full lines.
+        assert_eq!(g(64, 200, 40), compact(7, 10));
+        assert_eq!(g(64, 39, 9), full(9));
+        // The screen's own figure: 80x24 with the 64-channel feed.
+        let d = many_channels(64);
+        assert_eq!(meter_grid(&d, Rect::new(0, 0, 80, 24)), compact(9, 4));
+        assert_eq!(meter_page(&d, Rect::new(0, 0, 80, 24)), 36);
+        assert_eq!(meter_page(&many_channels(4), Rect::new(0, 0, 80, 24)), 4);
+    }
+
+    /// 16 channels on 80x24: every one visible at once, in four columns read downwards, each
+    /// cell with its number, bar, peak and lamp symbol; 8 channels keep the full lines.
+    #[test]
+    fn sixteen_channels_are_all_visible_on_80x24() {
+        let d = many_channels(16);
+        let t = screen(&d, 80, 24, PLAIN);
+        let buf = t.backend().buffer();
+        for ch in 1..=16usize {
+            let (col, r) = ((ch - 1) / 4, (ch - 1) % 4);
+            let line = row(buf, 2 + r as u16);
+            let cell: String = line.chars().skip(col * 20).take(20).collect();
+            let mark = if ch == 3 { '▶' } else { ' ' };
+            assert!(
+                cell.starts_with(&format!("{mark}{ch:>2} ")),
+                "ch {ch}: {cell:?}"
+            );
+            let peak = if ch == 7 { 0.0 } else { spread_db(ch) };
+            assert!(
+                cell.contains(&format!(" {} ", num(Some(peak), 5, 1))),
+                "ch {ch} peak {peak}: {cell:?}"
+            );
+            let symbol = match ch {
+                7 => '◆',
+                23 => '▲',
+                _ => '·',
+            };
+            assert_eq!(cell.chars().nth(18), Some(symbol), "ch {ch}: {cell:?}");
+            assert_eq!(cell.chars().nth(19), Some(' '), "a space between cells");
+        }
+        let text = text(&t);
+        assert!(text.contains(" ch 1-16 of 16 · ▶ 3: peak -23.0"), "{text}");
+        assert!(!text.contains("PgUp/PgDn"), "one page: {text}");
+        // Eight channels still have a line each, with the lamp's words.
+        let eight = text_of(&many_channels(8), 80, 24);
+        assert!(eight.contains("▶  3 "), "{eight}");
+        assert!(eight.contains("◆ OVER 1 0s"), "{eight}");
+        assert_eq!(eight.matches("· no clips").count(), 7, "{eight}");
+    }
+
+    fn text_of(d: &Dashboard, w: u16, h: u16) -> String {
+        text(&screen(d, w, h, PLAIN))
+    }
+
+    /// 64 channels on 80x24: a page of 36, the focus decides the page, the header says which
+    /// channels are shown and carries the focused channel's figures and whole lamp.
+    #[test]
+    fn sixty_four_channels_page_around_the_focus() {
+        let mut d = many_channels(64);
+        let first = text_of(&d, 80, 24);
+        assert!(
+            first.contains(
+                " ch 1-36 of 64, PgUp/PgDn · ▶ 3: peak -23.0 true -22.8 room 22.8 · no clips"
+            ),
+            "{first}"
+        );
+        let lines: Vec<&str> = first.lines().collect();
+        // Bottom of the fourth column: channel 36; channel 37 is not on this page.
+        assert!(
+            lines[10]
+                .chars()
+                .skip(60)
+                .collect::<String>()
+                .starts_with(" 36 "),
+            "{first}"
+        );
+        assert!(!first.contains(" 37 "), "{first}");
+        d.move_focus(40 - 2);
+        assert_eq!(d.focus, 40);
+        let second = text_of(&d, 80, 24);
+        assert!(
+            second.contains(" ch 37-64 of 64, PgUp/PgDn · ▶ 41: "),
+            "{second}"
+        );
+        assert!(second.contains("◆ OVER 1 21s"), "{second}");
+        let lines: Vec<&str> = second.lines().collect();
+        assert!(lines[2].starts_with(" 37 "), "{second}");
+        assert!(lines[6].starts_with("▶41 "), "{second}");
+        // The last page holds 28 channels: nine in each of three columns, one in the fourth.
+        assert!(
+            lines[2]
+                .chars()
+                .skip(60)
+                .collect::<String>()
+                .starts_with(" 64 "),
+            "{second}"
+        );
+    }
+
+    #[test]
+    fn compact_cell_shows_number_bar_hold_peak_and_lamp_symbol() {
+        let mut d = Dashboard::new(meta(vec![12], "dev"), "live", Ballistics::SamplePeak, 1.0);
+        d.apply(Update::Meters {
+            t_s: 10.0,
+            channels: vec![MeterFrame {
+                channel: 12,
+                sample_peak: 0.5,
+                true_peak: 0.52,
+                readings: [0.25; 4],
+            }],
+        });
+        d.apply(Update::ClipStarted {
+            channel: 12,
+            kind: ClipKind::FlatTop,
+            t_s: 9.0,
+            level_dbfs: Some(-6.0),
+            count: true,
+        });
+        let area = Rect::new(0, 0, 19, 1);
+        let mut buf = Buffer::empty(area);
+        let cell = |d: &Dashboard, theme, buf: &mut Buffer| {
+            (&CompactMeter {
+                channel: &d.shown().channels[0],
+                ballistics: Ballistics::SamplePeak,
+                focused: true,
+                number_width: 2,
+                theme,
+            })
+                .render(area, buf);
+        };
+        cell(&d, COLOUR, &mut buf);
+        let line = row(&buf, 0);
+        // "▶12 " + a 7-cell bar + " -6.0 " + the lamp symbol: 4 + 7 + 7 + 1 = 19.
+        assert!(line.starts_with("▶12 "), "{line}");
+        assert!(line.ends_with("  -6.0 ▲"), "{line}");
+        // 0.25 is -12.04 dBFS: (60 - 12.04) / 60 of 7 cells = 5.595, so five full cells and
+        // four eighths; the hold at the peak (-6.02 dBFS: 6.298 cells) in the seventh cell.
+        assert_eq!(line.chars().filter(|&c| c == '█').count(), 5, "{line}");
+        assert_eq!(buf[(4 + 5, 0)].symbol(), "▌");
+        assert_eq!(buf[(4 + 6, 0)].symbol(), "│");
+        // The lamp lit while the flat top goes on: reversed, in the flat-top colour.
+        let lamp_cell = &buf[(18, 0)];
+        assert!(lamp_cell.modifier.contains(Modifier::REVERSED));
+        assert_eq!(lamp_cell.fg, Color::Magenta);
+        // NO_COLOR: the same symbols, no colours anywhere.
+        let mut plain = Buffer::empty(area);
+        cell(&d, PLAIN, &mut plain);
+        assert_eq!(row(&plain, 0), line);
+        assert!((0..19).all(|x| plain[(x, 0)].fg == Color::Reset));
+        // Too narrow for a bar: what fits, no panic.
+        for w in [1, 3, 5, 11, 12] {
+            let mut small = Buffer::empty(Rect::new(0, 0, w, 1));
+            cell(&d, COLOUR, &mut small);
+        }
+        let mut small = Buffer::empty(Rect::new(0, 0, 5, 1));
+        (&CompactMeter {
+            channel: &d.shown().channels[0],
+            ballistics: Ballistics::SamplePeak,
+            focused: false,
+            number_width: 2,
+            theme: PLAIN,
+        })
+            .render(Rect::new(0, 0, 5, 1), &mut small);
+        assert_eq!(row(&small, 0), " 12  ");
+        // Levels below -99.9 dBFS keep five cells.
+        assert_eq!(compact_db(Some(-120.4)), " -120");
+        assert_eq!(compact_db(Some(-99.9)), "-99.9");
+        assert_eq!(compact_db(None), "   --");
+    }
+
+    /// The 64-channel feed on 80x24: compact cells (page 1 of 2), the focused channel's
+    /// fingerprint, the clips list.
+    #[test]
+    fn whole_screen_64_channels_80x24() {
+        let d = many_channels(64);
+        insta::assert_snapshot!("channels_64_80x24", text_of(&d, 80, 24));
+    }
+
+    /// Side-by-side bars: A and B per harmonic on one scale, odd and even by glyph, levels and
+    /// the difference B - A.
+    #[test]
+    fn compare_bars_side_by_side_with_differences() {
+        let a = fingerprint("amp, 1 W", &[(2, -33.0), (3, -12.0), (4, -130.0)]);
+        let b = fingerprint("amp, 10 W", &[(3, -60.0), (4, -87.0), (5, -24.0)]);
+        let area = Rect::new(0, 0, 80, 10);
+        let mut buf = Buffer::empty(area);
+        (&CompareBars {
+            a: &a,
+            b: &b,
+            theme: COLOUR,
+        })
+            .render(area, &mut buf);
+        // (80 - 28) / 2 = 26 cells a bar: tag 0..4, A bar 4..30, A level 30..37, " │ " 37..40,
+        // B bar 40..66, B level 66..73, difference 73..80.
+        assert_eq!(CompareBars::bar_width(80), 26);
+        let part = |y: u16, from: usize, to: usize| -> String {
+            row(&buf, y).chars().skip(from).take(to - from).collect()
+        };
+        let count = |y, from, to, c: char| part(y, from, to).chars().filter(|&x| x == c).count();
+        let header = row(&buf, 0);
+        assert!(header.starts_with("H   A: amp, 1 W"), "{header}");
+        assert_eq!(part(0, 37, 50), " │ B: amp, 10");
+        assert!(header.ends_with("    B-A"), "{header}");
+        // H2 (even): A at -33 dBc fills 87/120 of 26 = 18.85, so 19 cells of the even glyph;
+        // B has no H2: an empty bar, "--", and no difference.
+        assert_eq!(part(1, 0, 4), format!("{EVEN_GLYPH}2  "));
+        assert_eq!(count(1, 4, 30, EVEN_GLYPH), 19);
+        assert_eq!(count(1, 4, 30, ODD_GLYPH), 0);
+        assert_eq!(part(1, 30, 40), "  -33.0 │ ");
+        assert_eq!(part(1, 40, 66).trim(), "");
+        assert_eq!(part(1, 66, 80), "     --     --");
+        // H3 (odd): A at -12 dBc fills 0.9 of 26 = 23.4, so 23 cells; B at -60 dBc fills
+        // 0.5, so 13; B - A = -48 dB.
+        assert_eq!(part(2, 0, 4), format!("{ODD_GLYPH}3  "));
+        assert_eq!(count(2, 4, 30, ODD_GLYPH), 23);
+        assert_eq!(count(2, 40, 66, ODD_GLYPH), 13);
+        assert_eq!(part(2, 66, 80), "  -60.0  -48.0");
+        // H4: A below the -120 dBc floor draws nothing but keeps its figure; B at -87 dBc fills
+        // 33/120 of 26 = 7.15 cells, 43 dB above A.
+        assert_eq!(count(3, 4, 30, EVEN_GLYPH), 0);
+        assert_eq!(part(3, 30, 37), " -130.0");
+        assert_eq!(count(3, 40, 66, EVEN_GLYPH), 7);
+        assert_eq!(part(3, 73, 80), "  +43.0");
+        // H5: only B, at -24 dBc: 0.8 of 26 = 20.8, so 21 cells.
+        assert_eq!(count(4, 40, 66, ODD_GLYPH), 21);
+        // H10 on the last line; colours tell odd from even as well as the glyphs.
+        assert_eq!(part(9, 0, 4), format!("{EVEN_GLYPH}10 "));
+        assert_eq!(buf[(4, 2)].fg, Color::LightRed);
+        assert_eq!(buf[(4, 1)].fg, Color::LightBlue);
+        // NO_COLOR: the same glyphs, no colours.
+        let mut plain = Buffer::empty(area);
+        (&CompareBars {
+            a: &a,
+            b: &b,
+            theme: PLAIN,
+        })
+            .render(area, &mut plain);
+        for y in 0..10 {
+            assert_eq!(row(&plain, y), row(&buf, y));
+            assert!((0..80).all(|x| plain[(x, y)].fg == Color::Reset));
+        }
+        // Narrow and short areas: what fits, no panic.
+        for (w, h) in [(1, 1), (20, 3), (28, 10), (30, 10), (40, 2)] {
+            let r = Rect::new(0, 0, w, h);
+            let mut small = Buffer::empty(r);
+            (&CompareBars {
+                a: &a,
+                b: &b,
+                theme: COLOUR,
+            })
+                .render(r, &mut small);
+        }
+    }
+
+    /// A followed log's long path: the stream time stays on the title line, the file's name
+    /// and the word "following" too; the source is cut before the mode is.
+    #[test]
+    fn long_titles_keep_the_clock_and_the_file_name() {
+        let mut d = many_channels(2);
+        d.mode =
+            "following /var/log/brink/a-rather-long-folder-name/bench-2026-12-02.ndjson".into();
+        d.meta.host = "file".into();
+        d.meta.device = "pair.wav".into();
+        let title = text_of(&d, 80, 24).lines().next().unwrap_or("").to_string();
+        assert!(title.ends_with("meters: peak  1:01.5"), "{title}");
+        // 80 less the badge (7), the right part (22) and the rate and channels (18) leaves 32
+        // columns after a space: "following …" and the 23-character file name do not fit
+        // together, and the file name wins.
+        assert!(
+            title.starts_with(" brink  …er-name/bench-2026-12-02.ndjson · 48000 Hz · 2 ch"),
+            "{title}"
+        );
+        d.mode = "following /var/log/brink/a-rather-long-folder-name/bench.ndjson".into();
+        let title = text_of(&d, 80, 24).lines().next().unwrap_or("").to_string();
+        assert!(
+            title.starts_with(" brink  following …der-name/bench.ndjson · 48000 Hz"),
+            "{title}"
+        );
+        assert!(title.ends_with("meters: peak  1:01.5"), "{title}");
+        // A shorter mode keeps it whole and cuts the source instead.
+        // 51 columns less the mode (22), the rate and channels (18) and ": " leave 8 for the
+        // source: seven characters and "…".
+        d.mode = "following bench.ndjson".into();
+        d.meta.device = "hw:CARD=USB,DEV=0 (a long device name)".into();
+        let title = text_of(&d, 80, 24).lines().next().unwrap_or("").to_string();
+        assert!(
+            title.starts_with(" brink  following bench.ndjson: hw:CARD… · 48000 Hz · 2 ch "),
+            "{title}"
+        );
+        assert!(title.ends_with("meters: peak  1:01.5"), "{title}");
+        // What fits is left alone.
+        assert_eq!(title_left("demo", "x", " · 1 Hz", 40), " demo: x · 1 Hz");
+        assert_eq!(
+            shorten_middle("following /a/b/c/d.ndjson", 20),
+            "following …/d.ndjson"
+        );
+        assert_eq!(
+            shorten_middle("following /a/long-name.ndjson", 20),
+            "…/a/long-name.ndjson"
+        );
+        assert_eq!(shorten_middle("abcdefghij", 5), "…ghij");
+        assert_eq!(shorten_middle("abc", 0), "…");
     }
 
     #[test]

@@ -475,6 +475,18 @@ fn a_bad_configuration_file_names_file_line_and_column() {
         .code(2)
         .stderr(predicates::str::contains("bad.toml:3:1"))
         .stderr(predicates::str::contains("max_ordr"));
+    // A value of the right type but out of range: its line and column too.
+    std::fs::write(&bad, "[scan]\njson = true\n\n[measure]\nmax_order = 90\n").unwrap();
+    brink()
+        .env("XDG_CONFIG_HOME", dir.path())
+        .args(["scan", "--config"])
+        .arg(&bad)
+        .arg("x.wav")
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains(
+            "bad.toml:5:13: [measure] max_order = 90 is outside 2..=40",
+        ));
 }
 
 /// Every bundled preset is accepted by the real binary.

@@ -1,10 +1,14 @@
-//! The dashboard end to end: `brink demo` in a real terminal (tmux, on a private server socket),
-//! its screen read with `capture-pane`, keys sent with `send-keys`, a resize to a tiny window,
-//! and the exit status after `q`. CI installs tmux.
+//! The dashboard end to end: `brink demo` and `brink watch --follow` in a real terminal (tmux,
+//! on a private server socket), the screen read with `capture-pane`, keys sent with
+//! `send-keys`, a resize to a tiny window, and the exit status after `q`. CI installs tmux.
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::process::{Child, Command, Stdio};
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::{Duration, Instant};
+
+/// Tmux servers started by this test binary, for socket names of their own.
+static SERVERS: AtomicUsize = AtomicUsize::new(0);
 
 /// A private tmux server running one command in an 80×24 window; killed on drop.
 struct Tmux {
@@ -17,7 +21,11 @@ impl Tmux {
     fn start(args: &[&str], env: &[(&str, &str)]) -> Tmux {
         let dir = tempfile::tempdir().unwrap();
         let status_file = dir.path().join("status");
-        let socket = format!("brink-test-{}-{}", std::process::id(), args.join("-").len());
+        let socket = format!(
+            "brink-test-{}-{}",
+            std::process::id(),
+            SERVERS.fetch_add(1, Ordering::Relaxed)
+        );
         let bin = assert_cmd::cargo::cargo_bin("brink");
         let mut cmd = String::new();
         for (k, v) in env {
@@ -190,4 +198,113 @@ fn sigterm_restores_the_terminal_and_exits_cleanly() {
     assert!(out.success(), "pkill found no brink");
     assert_eq!(t.exit_status(10), "exit=0");
     assert!(!t.screen().contains("meters: VU"));
+}
+
+/// A background `brink log`, killed if the test ends early.
+struct Logger(Option<Child>);
+
+impl Logger {
+    /// SIGTERM, as a user ending the recording would send; the exit status.
+    fn stop(mut self) -> Option<i32> {
+        let mut child = self.0.take()?;
+        Command::new("kill")
+            .args(["-TERM", &child.id().to_string()])
+            .status()
+            .unwrap();
+        child.wait().unwrap().code()
+    }
+}
+
+impl Drop for Logger {
+    fn drop(&mut self) {
+        if let Some(mut c) = self.0.take() {
+            let _ = c.kill();
+            let _ = c.wait();
+        }
+    }
+}
+
+/// The meter line of channel `ch` on a captured screen: a focus mark or a space, then the
+/// number in three columns.
+fn meter_line(screen: &str, ch: usize) -> Option<String> {
+    let head = format!("{ch:>3} ");
+    screen
+        .lines()
+        .map(|l| l.chars().skip(1).collect::<String>())
+        .find(|rest| rest.starts_with(&head))
+}
+
+/// `brink watch --follow` draws a log that another brink process is writing: `brink log
+/// --loop --out` on a two-channel file, followed in the terminal. Both channels' levels, the
+/// flat-top clip on channel 2 (its lamp and its line in the recent clips), the logger's stop
+/// record when it ends; then q restores the terminal and exits 0.
+#[test]
+fn follow_draws_a_log_another_brink_is_writing() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = dir.path().join("pair.wav");
+    // Channel 1: a clean tone at -20 dBFS. Channel 2: a tone at -6 dBFS, clean for a second,
+    // then driven 12 dB into a -6 dBFS clipper: one flat-top episode each pass of the loop,
+    // closed (and logged) when the clean second comes round again.
+    crate::util::brink()
+        .arg("gen")
+        .arg(&wav)
+        .args([
+            "sine:997@-20",
+            "clip:997@-6,drive=0..12/2",
+            "--length",
+            "2s",
+        ])
+        .assert()
+        .success();
+    let log = dir.path().join("bench.ndjson");
+    let logger = Logger(Some(
+        Command::new(assert_cmd::cargo::cargo_bin("brink"))
+            .args(["log", "--loop", "--every", "250ms", "--input"])
+            .arg(format!("file:{}", wav.display()))
+            .arg("--out")
+            .arg(&log)
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .unwrap(),
+    ));
+    let t = Tmux::start(&["watch", "--follow", log.to_str().unwrap()], &[]);
+    let s = t.wait_for("the followed log", 20, |s| {
+        s.contains("following") && s.contains("recent clips")
+    });
+    let title = s.lines().next().unwrap_or("");
+    assert!(title.contains("bench.ndjson"), "{s}");
+    assert!(title.contains("48000 Hz · 2 ch"), "{s}");
+    assert!(
+        title.contains("meters: peak"),
+        "the right part fits too:\n{s}"
+    );
+    // The levels: peak, true peak and headroom of each channel, from the log's summaries.
+    let s = t.wait_for("both channels' levels", 20, |s| {
+        meter_line(s, 1).is_some_and(|l| l.contains("-20.0  -20.0  20.0"))
+            && meter_line(s, 2).is_some_and(|l| l.contains("-6.0"))
+    });
+    assert!(
+        meter_line(&s, 1).is_some_and(|l| l.contains("· no clips")),
+        "{s}"
+    );
+    // The clip: channel 2's lamp (symbol and word) and the recent clips list.
+    let s = t.wait_for("the flat-top episode", 30, |s| {
+        meter_line(s, 2).is_some_and(|l| l.contains("▲ FLAT"))
+            && s.lines()
+                .any(|l| l.contains("ch 2") && l.contains("▲ flat top"))
+    });
+    assert!(
+        meter_line(&s, 1).is_some_and(|l| l.contains("· no clips")),
+        "channel 1 never clips:\n{s}"
+    );
+    // The logger ends (SIGTERM: stop record, status 0); the screen says the input ended.
+    assert_eq!(logger.stop(), Some(0));
+    t.wait_for("the stop record", 10, |s| {
+        s.contains("input ended (the logger stopped)")
+    });
+    t.keys(&["q"]);
+    assert_eq!(t.exit_status(10), "exit=0");
+    let s = t.screen();
+    assert!(!s.contains("recent clips"), "terminal restored:\n{s}");
 }

@@ -4,6 +4,7 @@
 mod accuracy;
 mod cli;
 mod closed_form;
+mod compare;
 mod dashboard;
 mod demo;
 mod imd;

@@ -1011,3 +1011,428 @@ fn jack_capture_of_a_cpal_client_clean_then_flat_topped() {
     }
     check_accounting(&recs);
 }
+
+// ---------------------------------------------------------------------------------------------
+// `brink sweep` on JACK: a stage under test (the example `jack_curve`) in the loop.
+
+/// The example `jack_curve` (a JACK client applying a known curve, wiring itself between
+/// brink's output and input), killed when dropped.
+struct Stage(Child);
+
+impl Drop for Stage {
+    fn drop(&mut self) {
+        let _ = self.0.kill();
+        let _ = self.0.wait();
+    }
+}
+
+fn example_binary(name: &str) -> PathBuf {
+    let exe = std::env::current_exe().unwrap();
+    let path = exe
+        .parent()
+        .and_then(Path::parent)
+        .unwrap()
+        .join("examples")
+        .join(name);
+    assert!(
+        path.exists(),
+        "{} is missing: run `cargo test --features jack` (which builds examples) or \
+         `cargo build --features jack --example {name}` first",
+        path.display()
+    );
+    path
+}
+
+fn sweep_needs(test: &str) -> bool {
+    skip_for_missing(
+        test,
+        &[
+            ("bash", on_path("bash")),
+            ("jackd (package jackd2)", on_path("jackd")),
+            ("jack_lsp (package jackd2)", on_path("jack_lsp")),
+            (
+                "brink built with JACK (cargo test --features jack; needs libjack-jackd2-dev)",
+                cfg!(feature = "jack"),
+            ),
+        ],
+    )
+}
+
+/// A private server, and optionally a stage applying `curve`. Returns the server guard, the
+/// stage guard and the client environment.
+fn sweep_rig(
+    dir: &Path,
+    tag: &str,
+    curve: Option<&str>,
+) -> (JackServer, Option<Stage>, [(&'static str, OsString); 2]) {
+    let server = JackServer {
+        name: format!("brink-{tag}-{}", std::process::id()),
+        state: dir.join("jack-state"),
+    };
+    server.stop();
+    run_helper("jack-server.sh", &["start", &server.name], &server.envs());
+    let env = [
+        ("JACK_DEFAULT_SERVER", OsString::from(&server.name)),
+        ("JACK_NO_START_SERVER", OsString::from("1")),
+    ];
+    let stage = curve.map(|c| {
+        let log = std::fs::File::create(dir.join("stage.log")).unwrap();
+        Stage(
+            Command::new(example_binary("jack_curve"))
+                .arg(c)
+                .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+                .stdin(Stdio::null())
+                .stdout(log.try_clone().unwrap())
+                .stderr(log)
+                .spawn()
+                .unwrap(),
+        )
+    });
+    (server, stage, env)
+}
+
+/// Run `brink sweep --host jack --json ARGS` to the end (at most `limit`).
+fn sweep_run(
+    env: &[(&'static str, OsString); 2],
+    args: &[&str],
+    limit: Duration,
+) -> (ExitStatus, String, String) {
+    let out = brink()
+        .args(["sweep", "--host", "jack", "--json"])
+        .args(args)
+        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .timeout(limit)
+        .output()
+        .unwrap();
+    (
+        out.status,
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+/// THD_F (%) of a unit sine of amplitude `a` hard-clipped at ±`c`, over H3..H19 (the odd
+/// harmonics of 997 Hz inside the 20 kHz band), from the Fourier series of a clipped sine:
+/// α = arcsin(c/a), b_n = (2/(πn))·[S(n−1) + S(n+1)], S(m) = sin(mα)/m, S(0) = α
+/// (../shared/reference-values.md, "Symmetric hard clip").
+fn clipped_sine_thd_pct(a: f64, c: f64) -> f64 {
+    if a <= c {
+        return 0.0;
+    }
+    let alpha = (c / a).asin();
+    let s = |m: i32| {
+        if m == 0 {
+            alpha
+        } else {
+            (f64::from(m) * alpha).sin() / f64::from(m)
+        }
+    };
+    let b = |n: i32| 2.0 / (PI * f64::from(n)) * (s(n - 1) + s(n + 1));
+    let h: f64 = (3..20).step_by(2).map(|n| b(n).powi(2)).sum();
+    100.0 * h.sqrt() / b(1)
+}
+
+/// The drive (dBFS) at which that THD reaches `pct`, by bisection on the closed form.
+fn clipped_sine_onset_dbfs(c: f64, pct: f64) -> f64 {
+    let (mut lo, mut hi) = (c, 1.0);
+    for _ in 0..100 {
+        let mid = 0.5 * (lo + hi);
+        if clipped_sine_thd_pct(mid, c) < pct {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    20.0 * lo.log10()
+}
+
+/// A symmetric hard clip at 0.25 (−12.04 dBFS) in a JACK loop: the sweep's onset (THD 1 %)
+/// matches the closed-form Fourier series of a clipped sine within 0.3 dB, the harmonics are
+/// odd only, the knee is steep, and below the clip the loop returns the drive unchanged.
+#[test]
+fn jack_sweep_of_a_hard_clip_finds_the_closed_form_onset() {
+    let test = "jack_sweep_of_a_hard_clip_finds_the_closed_form_onset";
+    if sweep_needs(test) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let (_server, _stage, env) = sweep_rig(dir.path(), "clip", Some("hardclip:0.25"));
+    let svg = dir.path().join("clip.svg");
+    let (status, stdout, stderr) = sweep_run(
+        &env,
+        &[
+            "--svg",
+            svg.to_str().unwrap(),
+            "--from",
+            "-16",
+            "--to",
+            "-8",
+            "--step",
+            "0.5",
+            "--settle",
+            "100ms",
+            "--measure",
+            "250ms",
+            "--wait",
+            "20s",
+        ],
+        Duration::from_secs(120),
+    );
+    assert!(
+        status.success(),
+        "{status}\n{stderr}\n{stdout}\nstage: {}",
+        std::fs::read_to_string(dir.path().join("stage.log")).unwrap_or_default()
+    );
+    assert!(stderr.contains("CAUTION"), "{stderr}");
+    let doc: Value = serde_json::from_str(stdout.trim()).expect("one JSON document");
+    assert_eq!(doc["format"], "brink-sweep-1");
+    assert_eq!(doc["frequency_hz"], 997.0);
+    let steps = doc["steps"].as_array().unwrap();
+    // 17 steps from −16 to −8 dBFS, and 4 refining ones between the two around the onset,
+    // never above the top drive; all sorted by drive.
+    let refined = steps.iter().filter(|s| s["refined"] == true).count();
+    assert_eq!((steps.len(), refined), (21, 4), "{doc}");
+    let drives: Vec<f64> = steps.iter().map(|s| f(&s["drive_dbfs"]).unwrap()).collect();
+    assert!(
+        drives.windows(2).all(|w| w[0] <= w[1]) && drives[20] == -8.0,
+        "{drives:?}"
+    );
+    let want = clipped_sine_onset_dbfs(0.25, 1.0);
+    let got = f(&doc["onset"]["drive_dbfs"]).expect("an onset");
+    assert!(
+        (got - want).abs() <= 0.3,
+        "onset {got} dBFS, closed form {want:.3} dBFS"
+    );
+    assert_eq!(f(&doc["onset"]["thd_pct"]), Some(1.0));
+    // Below the clip the loop has unity gain: return = drive (floats pass JACK unchanged).
+    for s in steps
+        .iter()
+        .filter(|s| f(&s["drive_dbfs"]).unwrap() <= -13.0)
+    {
+        let (d, r) = (f(&s["drive_dbfs"]).unwrap(), f(&s["return_dbfs"]).unwrap());
+        assert!((r - d).abs() < 0.05, "{s}");
+    }
+    // Well into clipping: the closed-form THD, odd harmonics only.
+    let top = steps.last().unwrap();
+    let thd_want = clipped_sine_thd_pct(10f64.powf(-8.0 / 20.0), 0.25);
+    let thd = f(&top["thd_pct"]).unwrap();
+    assert!(
+        (thd / thd_want - 1.0).abs() < 0.02,
+        "THD {thd} %, closed form {thd_want} %"
+    );
+    let h = &top["harmonics_dbc"];
+    for even in ["2", "4", "6", "8", "10"] {
+        assert!(f(&h[even]).is_none_or(|v| v < -80.0), "H{even}: {top}");
+    }
+    assert!(f(&h["3"]).unwrap() > -30.0, "{top}");
+    assert!(f(&top["odd_even_db"]).is_none_or(|v| v < -20.0), "{top}");
+    let knee = &doc["knee"];
+    assert!(f(&knee["steepest_db_per_db"]).unwrap() > 3.0, "{doc}");
+    assert!(
+        (f(&knee["drive_dbfs"]).unwrap() - want).abs() <= 1.0,
+        "{doc}"
+    );
+    // The figure: both panels, the onset marked with its value.
+    let fig = std::fs::read_to_string(&svg).unwrap();
+    assert!(fig.starts_with("<svg"), "{}", &fig[..fig.len().min(200)]);
+    for text in [
+        "Level sweep at 997 Hz",
+        "THD (%)",
+        "onset: THD 1 % at -11.8 dBFS",
+        "H3 (odd)",
+    ] {
+        assert!(fig.contains(text), "{text} missing from the figure");
+    }
+}
+
+/// An asymmetric square-law stage y = x + 0.5·x²: H2 only, at 20·log10(0.5·A/2) dBc (the
+/// product-to-sum identity sin² = (1 − cos 2θ)/2), a positive odd/even balance, THD rising 1 dB
+/// per dB (no knee) and the onset where 0.25·A = 1 %, A = 0.04 (−27.96 dBFS).
+#[test]
+fn jack_sweep_of_an_asymmetric_stage_is_even_rich() {
+    let test = "jack_sweep_of_an_asymmetric_stage_is_even_rich";
+    if sweep_needs(test) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let (_server, _stage, env) = sweep_rig(dir.path(), "asym", Some("square:0.5"));
+    let (status, stdout, stderr) = sweep_run(
+        &env,
+        &[
+            "--from",
+            "-36",
+            "--to",
+            "-20",
+            "--step",
+            "2",
+            "--settle",
+            "100ms",
+            "--measure",
+            "250ms",
+            "--wait",
+            "20s",
+        ],
+        Duration::from_secs(120),
+    );
+    assert!(
+        status.success(),
+        "{status}\n{stderr}\n{stdout}\nstage: {}",
+        std::fs::read_to_string(dir.path().join("stage.log")).unwrap_or_default()
+    );
+    let doc: Value = serde_json::from_str(stdout.trim()).expect("one JSON document");
+    for s in doc["steps"].as_array().unwrap() {
+        let a = 10f64.powf(f(&s["drive_dbfs"]).unwrap() / 20.0);
+        let h2 = f(&s["harmonics_dbc"]["2"]).unwrap();
+        let want = 20.0 * (0.25 * a).log10();
+        assert!(
+            (h2 - want).abs() < 0.1,
+            "H2 {h2} dBc, closed form {want:.3}: {s}"
+        );
+        assert!(f(&s["odd_even_db"]).unwrap() > 20.0, "{s}");
+    }
+    let got = f(&doc["onset"]["drive_dbfs"]).expect("an onset");
+    let want = 20.0 * 0.04f64.log10();
+    assert!(
+        (got - want).abs() <= 0.3,
+        "onset {got}, closed form {want:.3}"
+    );
+    assert!(doc["knee"].is_null(), "{doc}");
+}
+
+/// Nothing in the loop: the sweep waits, then stops with the clear error, having played only
+/// the lowest drive; its output ports are gone once it has exited.
+#[test]
+fn jack_sweep_without_a_return_stops_with_a_clear_error() {
+    let test = "jack_sweep_without_a_return_stops_with_a_clear_error";
+    if sweep_needs(test) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let (_server, _stage, env) = sweep_rig(dir.path(), "open", None);
+    let started = Instant::now();
+    let (status, stdout, stderr) = sweep_run(
+        &env,
+        &["--from", "-40", "--to", "-20", "--wait", "2s"],
+        Duration::from_secs(60),
+    );
+    assert_eq!(status.code(), Some(1), "{stderr}\n{stdout}");
+    assert!(
+        stderr.contains("no signal returns on input 1: check the loop"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("-40.0 dBFS"), "{stderr}");
+    assert!(stderr.contains("the output is stopped"), "{stderr}");
+    assert!(stdout.trim().is_empty(), "no report: {stdout}");
+    assert!(started.elapsed() >= Duration::from_secs(2), "it waited");
+    let env_ref: Vec<(&str, &OsStr)> = env.iter().map(|(k, v)| (*k, v.as_os_str())).collect();
+    let lsp = Command::new("jack_lsp")
+        .envs(env_ref.iter().copied())
+        .stdin(Stdio::null())
+        .output()
+        .unwrap();
+    let ports = String::from_utf8_lossy(&lsp.stdout);
+    assert!(!ports.contains("_out:out_0"), "{ports}");
+}
+
+/// The square-law stage y = x + 0.5·x² again, swept over frequency at −30 dBFS and with the
+/// SMPTE pair. Frequency: the return equals the drive (the x term has unity gain) and H2 sits at
+/// 20·log10(0.25·A) dBc at every frequency whose H2 lies inside the 20 kHz band. SMPTE (60 Hz +
+/// 7 kHz, 4:1, RP120): the cross term 2·A1·A2·sin ω1t·sin ω2t puts 0.5·A1·A2 at f2 − f1 and at
+/// f2 + f1 (product-to-sum identity) and nothing further out, so IMD re A2 = √2·0.5·A1 with
+/// A1 = 0.8·A.
+#[test]
+fn jack_sweep_over_frequency_and_with_the_smpte_pair() {
+    let test = "jack_sweep_over_frequency_and_with_the_smpte_pair";
+    if sweep_needs(test) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let (_server, _stage, env) = sweep_rig(dir.path(), "freq", Some("square:0.5"));
+    let (status, stdout, stderr) = sweep_run(
+        &env,
+        &[
+            "--freqs",
+            "100..6400",
+            "--per-octave",
+            "1",
+            "--drive",
+            "-30",
+            "--settle",
+            "100ms",
+            "--measure",
+            "250ms",
+            "--wait",
+            "20s",
+        ],
+        Duration::from_secs(120),
+    );
+    assert!(
+        status.success(),
+        "{status}\n{stderr}\n{stdout}\nstage: {}",
+        std::fs::read_to_string(dir.path().join("stage.log")).unwrap_or_default()
+    );
+    let doc: Value = serde_json::from_str(stdout.trim()).expect("one JSON document");
+    assert_eq!(doc["kind"], "frequency");
+    assert!(
+        doc["onset"].is_null() && doc["frequency_hz"].is_null(),
+        "{doc}"
+    );
+    let steps = doc["steps"].as_array().unwrap();
+    // 100 · 2^k up to 6400: 7 points.
+    assert_eq!(steps.len(), 7, "{doc}");
+    let a = 10f64.powf(-30.0 / 20.0);
+    for (k, s) in steps.iter().enumerate() {
+        let want_f = 100.0 * 2f64.powi(k as i32);
+        assert!(
+            (f(&s["frequency_hz"]).unwrap() - want_f).abs() < 1e-6,
+            "{s}"
+        );
+        assert!((f(&s["return_hz"]).unwrap() - want_f).abs() < 0.01, "{s}");
+        assert!((f(&s["return_dbfs"]).unwrap() + 30.0).abs() < 0.05, "{s}");
+        let h2 = f(&s["harmonics_dbc"]["2"]).unwrap();
+        assert!((h2 - 20.0 * (0.25 * a).log10()).abs() < 0.1, "{s}");
+    }
+
+    let (status, stdout, stderr) = sweep_run(
+        &env,
+        &[
+            "--imd",
+            "smpte",
+            "--from",
+            "-30",
+            "--to",
+            "-20",
+            "--step",
+            "5",
+            "--settle",
+            "100ms",
+            "--measure",
+            "500ms",
+            "--wait",
+            "20s",
+        ],
+        Duration::from_secs(120),
+    );
+    assert!(
+        status.success(),
+        "{status}\n{stderr}\n{stdout}\nstage: {}",
+        std::fs::read_to_string(dir.path().join("stage.log")).unwrap_or_default()
+    );
+    let doc: Value = serde_json::from_str(stdout.trim()).expect("one JSON document");
+    let steps = doc["steps"].as_array().unwrap();
+    assert_eq!(steps.len(), 3, "{doc}");
+    for s in steps {
+        let a1 = 0.8 * 10f64.powf(f(&s["drive_dbfs"]).unwrap() / 20.0);
+        let want = 100.0 * 2f64.sqrt() * 0.5 * a1;
+        let got = f(&s["imd_pct"]).unwrap();
+        assert!(
+            (got / want - 1.0).abs() < 0.02,
+            "IMD {got} %, closed form {want} %: {s}"
+        );
+        assert!(s["thd_pct"].is_null(), "{s}");
+    }
+}
