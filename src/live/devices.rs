@@ -639,6 +639,44 @@ mod tests {
     }
 
     #[test]
+    fn outputs_are_found_the_same_way() {
+        let h = host();
+        let find = |sel| name_of(find_output(&h, sel));
+        assert_eq!(find(None), Ok("HDMI Output".to_owned()));
+        assert_eq!(find(Some("hdmi")), Ok("HDMI Output".to_owned()));
+        assert_eq!(find(Some("#2")), Ok("HDMI Output".to_owned()));
+        assert_eq!(
+            find(Some("scarlett")),
+            Err(
+                "device 'Scarlett 18i20 USB' has no output channels; `brink devices` lists the \
+                 outputs"
+                    .into()
+            )
+        );
+        assert_eq!(
+            find(Some("Monitor Out")),
+            Err(
+                "no output device matches 'Monitor Out' on host custom; `brink devices` lists \
+                 them"
+                    .into()
+            )
+        );
+        let none = SynthHost {
+            devices: vec![input("Mic", 1)],
+            default_input: Some(0),
+            default_output: None,
+        }
+        .into_cpal();
+        assert_eq!(
+            name_of(find_output(&none, None)),
+            Err(
+                "host custom has no default output device; name one (`brink devices` lists them)"
+                    .into()
+            )
+        );
+    }
+
+    #[test]
     fn a_host_without_default_input_says_so() {
         let h = SynthHost {
             devices: vec![input("Mic", 1)],
