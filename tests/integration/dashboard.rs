@@ -11,14 +11,14 @@ use std::time::{Duration, Instant};
 static SERVERS: AtomicUsize = AtomicUsize::new(0);
 
 /// A private tmux server running one command in an 80×24 window; killed on drop.
-struct Tmux {
+pub(crate) struct Tmux {
     socket: String,
     status_file: PathBuf,
     _dir: tempfile::TempDir,
 }
 
 impl Tmux {
-    fn start(args: &[&str], env: &[(&str, &str)]) -> Tmux {
+    pub(crate) fn start(args: &[&str], env: &[(&str, &str)]) -> Tmux {
         let dir = tempfile::tempdir().unwrap();
         let status_file = dir.path().join("status");
         let socket = format!(
@@ -66,7 +66,7 @@ impl Tmux {
         }
     }
 
-    fn tmux(&self, args: &[&str]) -> String {
+    pub(crate) fn tmux(&self, args: &[&str]) -> String {
         let out = Command::new("tmux")
             .args(["-L", &self.socket])
             .args(args)
@@ -75,18 +75,18 @@ impl Tmux {
         String::from_utf8_lossy(&out.stdout).into_owned()
     }
 
-    fn screen(&self) -> String {
+    pub(crate) fn screen(&self) -> String {
         self.tmux(&["capture-pane", "-p"])
     }
 
-    fn keys(&self, keys: &[&str]) {
+    pub(crate) fn keys(&self, keys: &[&str]) {
         let mut args = vec!["send-keys"];
         args.extend_from_slice(keys);
         self.tmux(&args);
     }
 
     /// Wait until the screen satisfies `ok`; panic with the last screen after `secs`.
-    fn wait_for(&self, what: &str, secs: u64, ok: impl Fn(&str) -> bool) -> String {
+    pub(crate) fn wait_for(&self, what: &str, secs: u64, ok: impl Fn(&str) -> bool) -> String {
         let deadline = Instant::now() + Duration::from_secs(secs);
         loop {
             let s = self.screen();
@@ -100,7 +100,7 @@ impl Tmux {
         }
     }
 
-    fn exit_status(&self, secs: u64) -> String {
+    pub(crate) fn exit_status(&self, secs: u64) -> String {
         let deadline = Instant::now() + Duration::from_secs(secs);
         loop {
             if let Ok(s) = std::fs::read_to_string(&self.status_file) {
@@ -226,7 +226,7 @@ impl Drop for Logger {
 
 /// The meter line of channel `ch` on a captured screen: a focus mark or a space, then the
 /// number in three columns.
-fn meter_line(screen: &str, ch: usize) -> Option<String> {
+pub(crate) fn meter_line(screen: &str, ch: usize) -> Option<String> {
     let head = format!("{ch:>3} ");
     screen
         .lines()

@@ -798,6 +798,226 @@ fn jack_capture_survives_a_server_stop_and_restart() {
     check_accounting(&recs);
 }
 
+/// The numbers of a dashboard meter line (from `dashboard::meter_line`): sample peak (dBFS), true
+/// peak (dBTP) and headroom (dB), each `None` where the screen shows `--`. The line reads
+/// "  N BAR PEAK TRUE ROOM LAMP"; the bar is one word of block glyphs, `·` and `│`.
+fn meter_numbers(line: &str) -> [Option<f64>; 3] {
+    let words: Vec<&str> = line.split_whitespace().collect();
+    let at = |i: usize| words.get(i).and_then(|w| w.parse::<f64>().ok());
+    [at(2), at(3), at(4)]
+}
+
+/// Both channels' meter lines show a sample peak within ±0.2 dB of `want` dBFS, and the same
+/// for the true peak when `true_peak` (each: the highest since the last reset).
+fn meters_read(screen: &str, want: f64, true_peak: bool) -> bool {
+    (1..=2).all(|ch| {
+        crate::dashboard::meter_line(screen, ch).is_some_and(|l| {
+            let [peak, tp, _] = meter_numbers(&l);
+            peak.is_some_and(|p| (p - want).abs() <= 0.2)
+                && (!true_peak || tp.is_some_and(|t| (t - want).abs() <= 0.2))
+        })
+    })
+}
+
+/// The focused channel's fingerprint on screen: its channel (from the panel's title), the
+/// fundamental (Hz) and its level (dBFS), from "F Hz  at L dBFS".
+fn focus_tone(screen: &str) -> Option<(usize, f64, Option<f64>)> {
+    let ch = screen.lines().find_map(|l| {
+        let rest = l.split(" fingerprint ").next()?;
+        (rest.len() < l.len())
+            .then(|| rest.trim().strip_prefix("ch ")?.parse().ok())
+            .flatten()
+    })?;
+    let line = screen.lines().find(|l| l.contains(" Hz  at "))?;
+    let (before, after) = line.split_once(" Hz  at ")?;
+    let hz = before.split_whitespace().last()?.parse().ok()?;
+    let level = after.split_whitespace().next().and_then(|w| w.parse().ok());
+    Some((ch, hz, level))
+}
+
+/// The character line of the focused fingerprint: the right column's words after the
+/// odd/even balance line (the last words of their line, after a run of spaces).
+fn character_line(screen: &str) -> Option<String> {
+    let mut lines = screen.lines();
+    lines.find(|l| l.contains("odd ◀"))?;
+    let next = lines.next()?;
+    Some(next.rsplit("  ").next()?.trim().to_string())
+}
+
+/// The focused channel shows a steady, clean tone at `hz` (±0.5 Hz) and −13.98 dBFS (±0.2).
+fn focus_is(screen: &str, ch: usize, hz: f64) -> bool {
+    let mark = format!("▶{ch:>3} ");
+    screen.lines().any(|l| l.starts_with(&mark))
+        && focus_tone(screen).is_some_and(|(c, f, level)| {
+            c == ch && (f - hz).abs() <= 0.5 && level.is_some_and(|l| (l + 13.98).abs() <= 0.2)
+        })
+        && character_line(screen).as_deref() == Some("clean")
+}
+
+/// Neither lamp has lit and the recent clips list is empty.
+fn no_clips(screen: &str) -> bool {
+    (1..=2).all(|ch| {
+        crate::dashboard::meter_line(screen, ch).is_some_and(|l| l.ends_with("· no clips"))
+    }) && {
+        let mut lines = screen.lines();
+        lines.find(|l| l.starts_with(" recent clips "));
+        lines.next().map(str::trim) == Some("none")
+    }
+}
+
+/// `brink watch --host jack` in a real terminal (tmux) on a private JACK server, the tone
+/// client's ports connected to brink's input with `jack_connect`: the title names the JACK input
+/// at 48000 Hz; both channels' peaks read −14.0 dBFS (the tone's 0.2 = −13.98 dBFS); channel 1's
+/// fingerprint is 240 Hz and, with the focus moved down, channel 2's is 720 Hz, both clean;
+/// neither lamp lights. After `r` (reset peaks) the true peaks read −14.0 dBTP too. Then the
+/// server stops mid-run: the status line says the input was lost and is being retried, with the
+/// JACK reason; `q` quits with status 0 and the terminal is restored.
+#[test]
+fn jack_watch_draws_a_live_jack_input() {
+    let test = "jack_watch_draws_a_live_jack_input";
+    if skip_for_missing(
+        test,
+        &[
+            ("bash", on_path("bash")),
+            ("tmux", on_path("tmux")),
+            ("jackd (package jackd2)", on_path("jackd")),
+            (
+                "jack_lsp and jack_connect (package jackd2)",
+                on_path("jack_lsp") && on_path("jack_connect"),
+            ),
+            (
+                "jack_simple_client (package jackd2)",
+                on_path("jack_simple_client"),
+            ),
+            (
+                "brink built with JACK (cargo test --features jack; needs libjack-jackd2-dev)",
+                cfg!(feature = "jack"),
+            ),
+        ],
+    ) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let server = JackServer {
+        name: format!("brink-watch-{}", std::process::id()),
+        state: dir.path().join("jack-state"),
+    };
+    server.stop();
+    server.start();
+    let env: [(&str, &OsStr); 2] = [
+        ("JACK_DEFAULT_SERVER", OsStr::new(&server.name)),
+        ("JACK_NO_START_SERVER", OsStr::new("1")),
+    ];
+    let t = crate::dashboard::Tmux::start(
+        &[
+            "watch",
+            "--host",
+            "jack",
+            "--channels",
+            "1-2",
+            "--rate",
+            "48000",
+        ],
+        &[
+            ("JACK_DEFAULT_SERVER", &server.name),
+            ("JACK_NO_START_SERVER", "1"),
+        ],
+    );
+    let s = t.wait_for("the dashboard on the JACK input", 30, |s| {
+        s.contains("recent clips") && s.lines().last().is_some_and(|l| l.starts_with("input ok"))
+    });
+    let title = s.lines().next().unwrap_or("");
+    assert!(
+        title.contains(" live: jack: JACK Input · 48000 Hz · 2 ch "),
+        "the title names host, device, rate and channels:\n{s}"
+    );
+    connect_tone(&env, Duration::from_secs(20));
+
+    // Levels first (meter frames come 30 a second), then the fingerprint (a 1 s tone window).
+    t.wait_for("both peaks at -14.0 dBFS", 30, |s| {
+        meters_read(s, -13.98, false)
+    });
+    let s = t.wait_for("channel 1's fingerprint: 240 Hz, clean", 30, |s| {
+        focus_is(s, 1, 240.0)
+    });
+    assert!(meters_read(&s, -13.98, false), "{s}");
+    assert!(no_clips(&s), "a sine at -14 dBFS never clips:\n{s}");
+    let status = s.lines().last().unwrap_or("");
+    assert!(status.starts_with("input ok · dropped "), "{s}");
+
+    // Focus on channel 2.
+    t.keys(&["j"]);
+    let s = t.wait_for("channel 2's fingerprint: 720 Hz, clean", 30, |s| {
+        focus_is(s, 2, 720.0)
+    });
+    assert!(meters_read(&s, -13.98, false), "{s}");
+    assert!(no_clips(&s), "{s}");
+
+    // The true peaks: the moment the ports were connected is a step from silence into the sine,
+    // and its interpolated peak overshoots the sine's (trial runs read -13.5 and -12.3 dBTP):
+    // reset, then a steady sine's true peak equals its sample peak. A stray xrun on the dummy
+    // driver can put a step in the stream again, so up to three resets.
+    let mut s = String::new();
+    for _ in 0..3 {
+        t.keys(&["r"]);
+        // Let the screen show what came after the reset (a screen from before it can only fail
+        // the check below, and then the reset is tried again).
+        std::thread::sleep(Duration::from_secs(1));
+        s = t.wait_for("the reset and both true peaks again", 20, |s| {
+            s.contains("peaks and counters reset")
+                && (1..=2).all(|ch| {
+                    crate::dashboard::meter_line(s, ch)
+                        .is_some_and(|l| meter_numbers(&l).iter().all(Option::is_some))
+                })
+        });
+        if meters_read(&s, -13.98, true) {
+            break;
+        }
+    }
+    assert!(
+        meters_read(&s, -13.98, true),
+        "true peaks after a reset:\n{s}"
+    );
+    for ch in 1..=2 {
+        let l = crate::dashboard::meter_line(&s, ch).unwrap();
+        let room = meter_numbers(&l)[2].unwrap();
+        assert!(
+            (room - 13.98).abs() <= 0.2,
+            "headroom of channel {ch}:\n{s}"
+        );
+    }
+    assert!(no_clips(&s), "{s}");
+
+    // The server goes away mid-run: the status line says so, in the dashboard's words, with
+    // cpal's reason. The reason is long, and on 80 columns "retrying" is cut off: read it wide.
+    server.stop();
+    let lost = "INPUT LOST (JACK Input: JACK server shut down";
+    t.wait_for("the input-lost status", 20, |s| {
+        s.lines().last().is_some_and(|l| l.starts_with(lost))
+    });
+    t.tmux(&["resize-window", "-x", "160", "-y", "24"]);
+    let s = t.wait_for("the whole status line", 10, |s| {
+        s.lines()
+            .last()
+            .is_some_and(|l| l.contains("), retrying · dropped "))
+    });
+    assert!(s.lines().last().unwrap().starts_with(lost), "{s}");
+    assert!(no_clips(&s), "{s}");
+
+    t.keys(&["q"]);
+    assert_eq!(t.exit_status(20), "exit=0");
+    let s = t.screen();
+    assert!(
+        !s.contains("recent clips") && !s.contains("INPUT LOST"),
+        "terminal restored:\n{s}"
+    );
+    assert!(
+        !s.contains("brink watch:") && !s.contains("panicked"),
+        "{s}"
+    );
+}
+
 /// The example `jack_player` (a cpal output client on JACK), killed when dropped.
 struct Player(Child);
 
@@ -1435,4 +1655,68 @@ fn jack_sweep_over_frequency_and_with_the_smpte_pair() {
         );
         assert!(s["thd_pct"].is_null(), "{s}");
     }
+}
+
+/// Ctrl-C in the middle of a sweep: the tone stops, the sweep says it was interrupted and how
+/// many steps it had measured, prints no report, exits 1, and its output ports are gone.
+#[test]
+fn jack_sweep_stops_on_ctrl_c() {
+    let test = "jack_sweep_stops_on_ctrl_c";
+    if sweep_needs(test) {
+        return;
+    }
+    let _one = one_at_a_time();
+    let dir = tempfile::tempdir().unwrap();
+    let (_server, _stage, env) = sweep_rig(dir.path(), "int", Some("gain:1"));
+    let err_path = dir.path().join("stderr");
+    let child = Command::new(assert_cmd::cargo::cargo_bin("brink"))
+        .args([
+            "sweep", "--host", "jack", "--json", "--from", "-40", "--to", "-20", "--step", "0.5",
+            "--settle", "200ms", "--wait", "20s",
+        ])
+        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(std::fs::File::create(&err_path).unwrap())
+        .spawn()
+        .unwrap();
+    // Wait for two measured steps (the table goes to stderr with --json).
+    let deadline = Instant::now() + Duration::from_secs(60);
+    let steps_seen = |text: &str| {
+        text.lines()
+            .filter(|l| l.trim_start().starts_with("-3") || l.trim_start().starts_with("-40"))
+            .count()
+    };
+    while steps_seen(&std::fs::read_to_string(&err_path).unwrap_or_default()) < 2 {
+        assert!(
+            Instant::now() < deadline,
+            "no steps: {}",
+            std::fs::read_to_string(&err_path).unwrap_or_default()
+        );
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    let status = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let out = child.wait_with_output().unwrap();
+    let stderr = std::fs::read_to_string(&err_path).unwrap();
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(
+        stderr.contains("brink sweep: interrupted (the output is stopped)"),
+        "{stderr}"
+    );
+    assert!(
+        stderr.contains("steps measured before it stopped"),
+        "{stderr}"
+    );
+    assert!(out.stdout.is_empty(), "no report on stdout");
+    let lsp = Command::new("jack_lsp")
+        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .stdin(Stdio::null())
+        .output()
+        .unwrap();
+    let ports = String::from_utf8_lossy(&lsp.stdout);
+    assert!(!ports.contains("_out:out_0"), "{ports}");
 }
