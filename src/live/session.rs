@@ -119,6 +119,8 @@ struct DeviceSupervision {
     fault_rx: Receiver<CaptureFault>,
     replace_tx: Sender<AnalysisReader>,
     state: Option<InputState>,
+    /// Xruns of the streams before the current one (each reopened stream counts from zero).
+    xruns_before: u64,
 }
 
 enum Driver {
@@ -327,6 +329,7 @@ impl Session {
                         fault_tx,
                         fault_rx,
                         replace_tx,
+                        xruns_before: 0,
                         state: Some(InputState::Running {
                             _stream: capture,
                             counters,
@@ -344,15 +347,18 @@ impl Session {
         self.position.load(Ordering::Relaxed) as f64 / f64::from(self.meta.sample_rate_hz.max(1))
     }
 
-    /// Host overruns counted on the current input stream.
+    /// Host overruns counted over the whole session, across input losses and reopened streams.
     pub fn xruns(&self) -> u64 {
         match &self.driver {
-            Some(Driver::Device(d)) => match &d.state {
-                Some(InputState::Running { counters, .. }) => {
-                    counters.xruns.load(Ordering::Relaxed)
-                }
-                _ => 0,
-            },
+            Some(Driver::Device(d)) => {
+                d.xruns_before
+                    + match &d.state {
+                        Some(InputState::Running { counters, .. }) => {
+                            counters.xruns.load(Ordering::Relaxed)
+                        }
+                        _ => 0,
+                    }
+            }
             _ => 0,
         }
     }
@@ -402,6 +408,7 @@ impl Session {
                 }
                 if let Some(reason) = lost {
                     notices.push(Notice::Lost(reason));
+                    d.xruns_before += counters.xruns.load(Ordering::Relaxed);
                     // Dropping the capture stops (what is left of) the stream.
                     d.state = Some(InputState::Lost {
                         next_try: t_now + RETRY_FIRST,

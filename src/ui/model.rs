@@ -583,12 +583,20 @@ impl Dashboard {
 }
 
 fn note_peaks(c: &mut ChannelView, t_s: f64, peak: Option<f64>, true_peak: Option<f64>) {
-    if let Some(p) = peak {
-        c.peak_dbfs = Some(c.peak_dbfs.map_or(p, |q| q.max(p)));
-        c.hold = match c.hold {
-            Some((h, at)) if h >= p && t_s - at < HOLD_S => Some((h, at)),
-            _ => Some((p, t_s)),
-        };
+    match peak {
+        Some(p) => {
+            c.peak_dbfs = Some(c.peak_dbfs.map_or(p, |q| q.max(p)));
+            c.hold = match c.hold {
+                Some((h, at)) if h >= p && t_s - at < HOLD_S => Some((h, at)),
+                _ => Some((p, t_s)),
+            };
+        }
+        // Digital silence: the hold lets go once its time is up, as it would for a quiet signal.
+        None => {
+            if c.hold.is_some_and(|(_, at)| t_s - at >= HOLD_S) {
+                c.hold = None;
+            }
+        }
     }
     if let Some(p) = true_peak {
         c.true_peak_dbtp = Some(c.true_peak_dbtp.map_or(p, |q| q.max(p)));
@@ -680,6 +688,29 @@ mod tests {
         assert!((c.peak_dbfs.expect("peak") - amplitude_db(0.5).expect("db")).abs() < 1e-9);
         let tp = amplitude_db(0.525).expect("db");
         assert!((c.headroom_db().expect("room") + tp).abs() < 1e-9);
+    }
+
+    #[test]
+    fn the_hold_lets_go_on_digital_silence() {
+        let mut d = Dashboard::new(meta(1), "live", Ballistics::SamplePeak, 1.0);
+        d.apply(Update::Meters {
+            t_s: 0.0,
+            channels: vec![frame(1, 0.2)],
+        });
+        // Silence reads no level at all (no dBFS for zero).
+        d.apply(Update::Meters {
+            t_s: 1.0,
+            channels: vec![frame(1, 0.0)],
+        });
+        assert!(d.shown().channels[0].hold.is_some(), "held within its time");
+        d.apply(Update::Meters {
+            t_s: HOLD_S + 0.1,
+            channels: vec![frame(1, 0.0)],
+        });
+        let c = &d.shown().channels[0];
+        assert_eq!(c.hold, None, "let go after {HOLD_S} s of silence");
+        // The peak since reset is kept.
+        assert!((c.peak_dbfs.expect("peak") - amplitude_db(0.2).expect("db")).abs() < 1e-9);
     }
 
     #[test]

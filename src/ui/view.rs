@@ -132,9 +132,15 @@ pub fn render(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
 fn render_title(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
     let m = &d.meta;
     let right = format!(
-        " meters: {}  {}{} ",
+        " meters: {}  {}{}{} ",
         d.ballistics.label(),
         if d.is_frozen() { "FROZEN  " } else { "" },
+        // The meters keep their last readings while the input is gone: say so where they are.
+        if matches!(d.shown().status.input, InputStatus::Lost(_)) {
+            "INPUT LOST  "
+        } else {
+            ""
+        },
         clock(d.shown().now_s)
     );
     let source = if m.host == d.mode || m.host == "file" {
@@ -980,13 +986,16 @@ fn render_clips(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
 
 fn render_status(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
     let s = &d.shown().status;
-    let (input, style) = match &s.input {
-        InputStatus::Ok => ("input ok".to_string(), theme.fg(Color::Green)),
+    // The counters come right after the state, so an 80-column line keeps them; a long reason
+    // for a loss goes last.
+    let (input, style, reason) = match &s.input {
+        InputStatus::Ok => ("input ok".to_string(), theme.fg(Color::Green), None),
         InputStatus::Lost(r) => (
-            format!("INPUT LOST ({r}), retrying"),
+            "INPUT LOST, retrying".to_string(),
             theme.fg(Color::Red).add_modifier(Modifier::BOLD),
+            Some(r.clone()),
         ),
-        InputStatus::Ended(r) => (format!("input ended ({r})"), theme.fg(Color::Yellow)),
+        InputStatus::Ended(r) => (format!("input ended ({r})"), theme.fg(Color::Yellow), None),
     };
     let load = s
         .load
@@ -998,6 +1007,9 @@ fn render_status(d: &Dashboard, theme: Theme, area: Rect, buf: &mut Buffer) {
             s.dropped_frames, s.xruns
         )),
     ];
+    if let Some(r) = reason {
+        spans.push(Span::styled(format!(" · {r}"), style));
+    }
     if let Some(m) = &d.message {
         spans.push(Span::styled(format!(" · {m}"), theme.fg(Color::Cyan)));
     }
@@ -1149,6 +1161,31 @@ mod tests {
         insta::assert_snapshot!("compare_80x24", text(&screen(&d, 80, 24, PLAIN)));
         d.help = true;
         insta::assert_snapshot!("help_80x24", text(&screen(&d, 80, 24, PLAIN)));
+    }
+
+    #[test]
+    fn a_lost_input_keeps_the_counters_in_view_and_marks_the_meters() {
+        let mut d = recorded_stage_box(1.2);
+        d.apply(Update::Health {
+            xruns: 7,
+            load: Some(0.021),
+        });
+        d.apply(Update::InputLost(
+            "JACK Input: JACK server shut down: the server is gone for good".into(),
+        ));
+        let s = text(&screen(&d, 80, 24, PLAIN));
+        let lines: Vec<&str> = s.lines().collect();
+        assert!(lines[0].contains("INPUT LOST"), "{s}");
+        let status = lines[23];
+        assert!(
+            status.starts_with("INPUT LOST, retrying · dropped 0 · xruns 7 · analysis load 2.1 %"),
+            "{status}"
+        );
+        // The reason follows, cut at the edge.
+        assert!(status.ends_with(" · JACK Input: J"), "{status}");
+        d.apply(Update::InputRestored);
+        let s = text(&screen(&d, 80, 24, PLAIN));
+        assert!(!s.contains("INPUT LOST"), "{s}");
     }
 
     #[test]

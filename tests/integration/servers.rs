@@ -989,18 +989,23 @@ fn jack_watch_draws_a_live_jack_input() {
     }
     assert!(no_clips(&s), "{s}");
 
-    // The server goes away mid-run: the status line says so, in the dashboard's words, with
-    // cpal's reason. The reason is long, and on 80 columns "retrying" is cut off: read it wide.
+    // The server goes away mid-run: the status line says so in the dashboard's words, the
+    // counters still in view on 80 columns, and the title marks the meters as last readings;
+    // cpal's reason follows the counters (read it wide).
     server.stop();
-    let lost = "INPUT LOST (JACK Input: JACK server shut down";
-    t.wait_for("the input-lost status", 20, |s| {
+    let lost = "INPUT LOST, retrying · dropped ";
+    let s = t.wait_for("the input-lost status", 20, |s| {
         s.lines().last().is_some_and(|l| l.starts_with(lost))
     });
+    assert!(
+        s.lines().next().is_some_and(|l| l.contains("INPUT LOST")),
+        "title marks the meters:\n{s}"
+    );
     t.tmux(&["resize-window", "-x", "160", "-y", "24"]);
     let s = t.wait_for("the whole status line", 10, |s| {
         s.lines()
             .last()
-            .is_some_and(|l| l.contains("), retrying · dropped "))
+            .is_some_and(|l| l.contains(" · JACK Input: JACK server shut down"))
     });
     assert!(s.lines().last().unwrap().starts_with(lost), "{s}");
     assert!(no_clips(&s), "{s}");
