@@ -690,7 +690,7 @@ fn main() -> Res<()> {
     println!("   at real time (sleep-paced); channel 1 flat-topped at -6 dBFS for 50 ms every ~500 ms. Measured");
     println!("   from the Instant after CaptureWriter::write returned to the Instant the receiving thread's");
     println!("   recv returned the ClipStarted with the same t_s (so it includes the channel hand-over and the");
-    println!("   analysis thread's 2 ms idle poll).");
+    println!("   analysis thread's idle wait: until a block is due, 1 to 10 ms).");
     let lat2 = latency(48_000, 2, (20.0 * scale).max(3.0))?;
     print_latency(&lat2);
     let lat64 = latency(96_000, 64, (10.0 * scale).max(3.0))?;
