@@ -23,9 +23,9 @@ use crate::dsp::imd::ImdMethod;
 use crate::dsp::tone::ToneSettings;
 use crate::live::{capture, devices, ring};
 use report::{SweepKind, SweepReport, SweepStep, SWEEP_FORMAT};
-use rig::{CpalRig, Rig};
+use rig::CpalRig;
 use run::{Stimulus, SweepFailure, SweepPlan, STEP_MAX_ORDER};
-use stimulus::{Control, Player, Wave};
+use stimulus::{Control, Player};
 
 /// What the sweep says before it plays anything.
 pub const CAUTION: &str = "\
@@ -330,17 +330,6 @@ pub fn run_sweep<W: Write, E: Write>(args: &SweepArgs, out: &mut W, err: &mut E)
         Ok(r) => r,
         Err((msg, code)) => return fail(err, msg, code),
     };
-    for s in &v.plan.steps {
-        let f = s.1;
-        if f >= f64::from(place.rate) / 2.0 {
-            rig.stop();
-            return fail(
-                err,
-                format!("{f:.0} Hz is not below Nyquist at {} Hz", place.rate),
-                crate::EXIT_USAGE,
-            );
-        }
-    }
     let header = header_lines(&v, &place);
     let live_to_stdout = !args.json;
     if live_to_stdout {
@@ -443,6 +432,19 @@ fn open_rig<E: Write>(
                 )
             })?,
     };
+    // Before any stream is opened (or the caution printed): every tone must fit the rate.
+    if let Some(f) = v
+        .plan
+        .steps
+        .iter()
+        .map(|s| s.1)
+        .find(|&f| f >= f64::from(rate) / 2.0)
+    {
+        return Err((
+            format!("{f:.0} Hz is not below Nyquist at {rate} Hz"),
+            crate::EXIT_USAGE,
+        ));
+    }
     let info = capture::probe_input(&in_dev, Some(rate)).map_err(usage)?;
     let in_ch = usize::from(args.input_channel);
     if in_ch > info.channels {
@@ -473,11 +475,7 @@ fn open_rig<E: Write>(
             .replace("{TOP}", &format!("{:.1}", v.top_dbfs))
     );
     let first = v.plan.steps.first().map_or(args.freq, |s| s.1);
-    let wave = match v.plan.stimulus {
-        Stimulus::Sine => Wave::Sine(first),
-        Stimulus::Pair { f1, f2, ratio, .. } => Wave::Pair { f1, f2, ratio },
-    };
-    let control = Control::new(wave);
+    let control = Control::new(run::wave_of(v.plan.stimulus, first));
     let (out_tx, out_rx) = crossbeam_channel::bounded(8);
     let player = Player::open(
         &out_dev,

@@ -15,6 +15,14 @@ fn lerp(a: Option<f64>, b: Option<f64>, t: f64) -> Option<f64> {
     Some(a? + (b? - a?) * t)
 }
 
+/// The steps with a distortion reading above zero, each with that reading (%).
+fn measured(steps: &[SweepStep]) -> Vec<(&SweepStep, f64)> {
+    steps
+        .iter()
+        .filter_map(|s| s.figure_pct().filter(|t| *t > 0.0).map(|t| (s, t)))
+        .collect()
+}
+
 /// The drive at which THD first crosses `threshold_pct` going up, interpolated between the two
 /// steps around the crossing on a dB scale (THD in dB against drive in dBFS). `None` when THD
 /// never crosses it, or is already above it at the first step (the onset lies below the sweep).
@@ -23,10 +31,7 @@ pub fn onset(steps: &[SweepStep], threshold_pct: f64) -> Option<Onset> {
     if threshold_pct.is_nan() || threshold_pct <= 0.0 {
         return None;
     }
-    let measured: Vec<(&SweepStep, f64)> = steps
-        .iter()
-        .filter_map(|s| s.figure_pct().filter(|t| *t > 0.0).map(|t| (s, t)))
-        .collect();
+    let measured = measured(steps);
     if measured.first().is_some_and(|&(_, t)| t >= threshold_pct) {
         return None;
     }
@@ -70,10 +75,7 @@ pub fn bracket(steps: &[SweepStep], threshold_pct: f64) -> Option<(f64, f64)> {
 /// [`KNEE_SLOPE`] dB per dB of drive and ends above [`KNEE_FLOOR_PCT`]; with the steepest such
 /// rise anywhere in the sweep. `None` when no segment rises that fast.
 pub fn knee(steps: &[SweepStep]) -> Option<Knee> {
-    let measured: Vec<(&SweepStep, f64)> = steps
-        .iter()
-        .filter_map(|s| s.figure_pct().filter(|t| *t > 0.0).map(|t| (s, t)))
-        .collect();
+    let measured = measured(steps);
     let slopes: Vec<(usize, f64)> = measured
         .windows(2)
         .enumerate()

@@ -104,7 +104,7 @@ fn db(amplitude: f64) -> Option<f64> {
 }
 
 /// The wave of a step.
-fn wave_of(stimulus: Stimulus, freq: f64) -> Wave {
+pub(crate) fn wave_of(stimulus: Stimulus, freq: f64) -> Wave {
     match stimulus {
         Stimulus::Sine => Wave::Sine(freq),
         Stimulus::Pair { f1, f2, ratio, .. } => Wave::Pair { f1, f2, ratio },
@@ -171,6 +171,27 @@ impl Meter {
     }
 }
 
+impl Meter {
+    /// Play a step at (drive, freq), let it settle and measure its return; a step that returns
+    /// no tone ends the sweep there.
+    fn play_and_measure(
+        &mut self,
+        plan: &SweepPlan,
+        rig: &mut dyn Rig,
+        drive: f64,
+        freq: f64,
+        rate: f64,
+    ) -> Result<SweepStep, SweepError> {
+        rig.play(wave_of(plan.stimulus, freq), amplitude(drive));
+        rig.listen(plan.settle, frames_for(plan, freq, rate), &mut self.buf)?;
+        self.step(plan, drive, freq, rate)
+            .ok_or(SweepError::ReturnLost {
+                channel: plan.input_channel,
+                drive_dbfs: drive,
+            })
+    }
+}
+
 /// Frames to measure at `freq`: the plan's length, and at least 40 cycles of the lowest tone and
 /// 4096 frames.
 fn frames_for(plan: &SweepPlan, freq: f64, rate: f64) -> usize {
@@ -232,14 +253,7 @@ fn run_steps(
         }
     }
     for &(drive, freq) in &plan.steps {
-        rig.play(wave_of(plan.stimulus, freq), amplitude(drive));
-        rig.listen(plan.settle, frames_for(plan, freq, rate), &mut meter.buf)?;
-        let Some(step) = meter.step(plan, drive, freq, rate) else {
-            return Err(SweepError::ReturnLost {
-                channel: plan.input_channel,
-                drive_dbfs: drive,
-            });
-        };
+        let step = meter.play_and_measure(plan, rig, drive, freq, rate)?;
         on_step(&step);
         steps.push(step);
     }
@@ -251,14 +265,7 @@ fn run_steps(
                 .map_or(first_freq, |s| s.frequency_hz);
             for k in 1..=plan.refine {
                 let drive = lo + (hi - lo) * k as f64 / (plan.refine + 1) as f64;
-                rig.play(wave_of(plan.stimulus, freq), amplitude(drive));
-                rig.listen(plan.settle, frames_for(plan, freq, rate), &mut meter.buf)?;
-                let Some(mut step) = meter.step(plan, drive, freq, rate) else {
-                    return Err(SweepError::ReturnLost {
-                        channel: plan.input_channel,
-                        drive_dbfs: drive,
-                    });
-                };
+                let mut step = meter.play_and_measure(plan, rig, drive, freq, rate)?;
                 step.refined = true;
                 on_step(&step);
                 steps.push(step);
