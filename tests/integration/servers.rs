@@ -545,6 +545,30 @@ struct JackServer {
 }
 
 impl JackServer {
+    /// A private server named for `tag` and this process, its state under `dir`; one left by an
+    /// earlier run that died is stopped first. Not started yet.
+    fn private(dir: &Path, tag: &str) -> JackServer {
+        let server = JackServer {
+            name: format!("brink-{tag}-{}", std::process::id()),
+            state: dir.join("jack-state"),
+        };
+        server.stop();
+        server
+    }
+
+    /// What a JACK client needs to use this server, and never start one of its own.
+    fn client_env(&self) -> [(&'static str, &OsStr); 2] {
+        [
+            ("JACK_DEFAULT_SERVER", OsStr::new(&self.name)),
+            ("JACK_NO_START_SERVER", OsStr::new("1")),
+        ]
+    }
+
+    /// Start the server alone, without the tone client.
+    fn start_bare(&self) -> String {
+        run_helper("jack-server.sh", &["start", &self.name], &self.envs())
+    }
+
     fn envs(&self) -> [(&str, &OsStr); 1] {
         [("BRINK_JACK_STATE_DIR", self.state.as_os_str())]
     }
@@ -654,18 +678,10 @@ fn jack_capture_survives_a_server_stop_and_restart() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let server = JackServer {
-        name: format!("brink-test-{}", std::process::id()),
-        state: dir.path().join("jack-state"),
-    };
-    // A server left by an earlier run that died is stopped first.
-    server.stop();
+    let server = JackServer::private(dir.path(), "test");
     server.start();
 
-    let env: [(&str, &OsStr); 2] = [
-        ("JACK_DEFAULT_SERVER", OsStr::new(&server.name)),
-        ("JACK_NO_START_SERVER", OsStr::new("1")),
-    ];
+    let env = server.client_env();
     let mut run = LogRun::spawn(
         dir.path(),
         &[
@@ -899,16 +915,9 @@ fn jack_watch_draws_a_live_jack_input() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let server = JackServer {
-        name: format!("brink-watch-{}", std::process::id()),
-        state: dir.path().join("jack-state"),
-    };
-    server.stop();
+    let server = JackServer::private(dir.path(), "watch");
     server.start();
-    let env: [(&str, &OsStr); 2] = [
-        ("JACK_DEFAULT_SERVER", OsStr::new(&server.name)),
-        ("JACK_NO_START_SERVER", OsStr::new("1")),
-    ];
+    let env = server.client_env();
     let t = crate::dashboard::Tmux::start(
         &[
             "watch",
@@ -1033,26 +1042,6 @@ impl Drop for Player {
     }
 }
 
-/// Where cargo put the `jack_player` example. `cargo test --features jack` builds it; a run
-/// filtered to one test target (`--test integration`) does not, so say how to get it.
-fn player_binary() -> PathBuf {
-    let exe = std::env::current_exe().unwrap();
-    // target/<profile>/deps/integration-… → target/<profile>/examples/jack_player
-    let path = exe
-        .parent()
-        .and_then(Path::parent)
-        .unwrap()
-        .join("examples")
-        .join("jack_player");
-    assert!(
-        path.exists(),
-        "{} is missing: run `cargo test --features jack` (which builds examples) or \
-         `cargo build --features jack --example jack_player` first",
-        path.display()
-    );
-    path
-}
-
 /// The JACK ports of client(s) whose name starts with `prefix` and whose port name contains
 /// `kind` (":in_" or ":out_"), sorted; waits up to `limit` for at least `n` of them.
 fn jack_ports(
@@ -1113,16 +1102,9 @@ fn jack_capture_of_a_cpal_client_clean_then_flat_topped() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let server = JackServer {
-        name: format!("brink-flat-{}", std::process::id()),
-        state: dir.path().join("jack-state"),
-    };
-    server.stop();
-    run_helper("jack-server.sh", &["start", &server.name], &server.envs());
-    let env: [(&str, &OsStr); 2] = [
-        ("JACK_DEFAULT_SERVER", OsStr::new(&server.name)),
-        ("JACK_NO_START_SERVER", OsStr::new("1")),
-    ];
+    let server = JackServer::private(dir.path(), "flat");
+    server.start_bare();
+    let env = server.client_env();
 
     let wav = dir.path().join("stage.wav");
     brink()
@@ -1139,7 +1121,7 @@ fn jack_capture_of_a_cpal_client_clean_then_flat_topped() {
         .assert()
         .success();
     let player = Player(
-        Command::new(player_binary())
+        Command::new(example_binary("jack_player"))
             .arg(&wav)
             .envs(env.iter().copied())
             .stdin(Stdio::null())
@@ -1251,6 +1233,9 @@ impl Drop for Stage {
     }
 }
 
+/// Where cargo put the example `name` (`jack_player`, `jack_curve`). `cargo test --features
+/// jack` builds examples; a run filtered to one test target (`--test integration`) does not, so
+/// say how to get it.
 fn example_binary(name: &str) -> PathBuf {
     let exe = std::env::current_exe().unwrap();
     let path = exe
@@ -1283,29 +1268,18 @@ fn sweep_needs(test: &str) -> bool {
     )
 }
 
-/// A private server, and optionally a stage applying `curve`. Returns the server guard, the
-/// stage guard and the client environment.
-fn sweep_rig(
-    dir: &Path,
-    tag: &str,
-    curve: Option<&str>,
-) -> (JackServer, Option<Stage>, [(&'static str, OsString); 2]) {
-    let server = JackServer {
-        name: format!("brink-{tag}-{}", std::process::id()),
-        state: dir.join("jack-state"),
-    };
-    server.stop();
-    run_helper("jack-server.sh", &["start", &server.name], &server.envs());
-    let env = [
-        ("JACK_DEFAULT_SERVER", OsString::from(&server.name)),
-        ("JACK_NO_START_SERVER", OsString::from("1")),
-    ];
+/// A private server, and optionally a stage applying `curve` (its output in `dir/stage.log`).
+/// Returns the server guard and the stage guard.
+fn sweep_rig(dir: &Path, tag: &str, curve: Option<&str>) -> (JackServer, Option<Stage>) {
+    let server = JackServer::private(dir, tag);
+    server.start_bare();
+    let env = server.client_env();
     let stage = curve.map(|c| {
         let log = std::fs::File::create(dir.join("stage.log")).unwrap();
         Stage(
             Command::new(example_binary("jack_curve"))
                 .arg(c)
-                .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+                .envs(env)
                 .stdin(Stdio::null())
                 .stdout(log.try_clone().unwrap())
                 .stderr(log)
@@ -1313,19 +1287,19 @@ fn sweep_rig(
                 .unwrap(),
         )
     });
-    (server, stage, env)
+    (server, stage)
 }
 
 /// Run `brink sweep --host jack --json ARGS` to the end (at most `limit`).
 fn sweep_run(
-    env: &[(&'static str, OsString); 2],
+    env: &[(&str, &OsStr)],
     args: &[&str],
     limit: Duration,
 ) -> (ExitStatus, String, String) {
     let out = brink()
         .args(["sweep", "--host", "jack", "--json"])
         .args(args)
-        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .envs(env.iter().copied())
         .timeout(limit)
         .output()
         .unwrap();
@@ -1382,7 +1356,8 @@ fn jack_sweep_of_a_hard_clip_finds_the_closed_form_onset() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let (_server, _stage, env) = sweep_rig(dir.path(), "clip", Some("hardclip:0.25"));
+    let (server, _stage) = sweep_rig(dir.path(), "clip", Some("hardclip:0.25"));
+    let env = server.client_env();
     let svg = dir.path().join("clip.svg");
     let (status, stdout, stderr) = sweep_run(
         &env,
@@ -1482,7 +1457,8 @@ fn jack_sweep_of_an_asymmetric_stage_is_even_rich() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let (_server, _stage, env) = sweep_rig(dir.path(), "asym", Some("square:0.5"));
+    let (server, _stage) = sweep_rig(dir.path(), "asym", Some("square:0.5"));
+    let env = server.client_env();
     let (status, stdout, stderr) = sweep_run(
         &env,
         &[
@@ -1536,7 +1512,8 @@ fn jack_sweep_without_a_return_stops_with_a_clear_error() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let (_server, _stage, env) = sweep_rig(dir.path(), "open", None);
+    let (server, _stage) = sweep_rig(dir.path(), "open", None);
+    let env = server.client_env();
     let started = Instant::now();
     let (status, stdout, stderr) = sweep_run(
         &env,
@@ -1552,9 +1529,8 @@ fn jack_sweep_without_a_return_stops_with_a_clear_error() {
     assert!(stderr.contains("the output is stopped"), "{stderr}");
     assert!(stdout.trim().is_empty(), "no report: {stdout}");
     assert!(started.elapsed() >= Duration::from_secs(2), "it waited");
-    let env_ref: Vec<(&str, &OsStr)> = env.iter().map(|(k, v)| (*k, v.as_os_str())).collect();
     let lsp = Command::new("jack_lsp")
-        .envs(env_ref.iter().copied())
+        .envs(env)
         .stdin(Stdio::null())
         .output()
         .unwrap();
@@ -1576,7 +1552,8 @@ fn jack_sweep_over_frequency_and_with_the_smpte_pair() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let (_server, _stage, env) = sweep_rig(dir.path(), "freq", Some("square:0.5"));
+    let (server, _stage) = sweep_rig(dir.path(), "freq", Some("square:0.5"));
+    let env = server.client_env();
     let (status, stdout, stderr) = sweep_run(
         &env,
         &[
@@ -1672,14 +1649,15 @@ fn jack_sweep_stops_on_ctrl_c() {
     }
     let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
-    let (_server, _stage, env) = sweep_rig(dir.path(), "int", Some("gain:1"));
+    let (server, _stage) = sweep_rig(dir.path(), "int", Some("gain:1"));
+    let env = server.client_env();
     let err_path = dir.path().join("stderr");
     let child = Command::new(assert_cmd::cargo::cargo_bin("brink"))
         .args([
             "sweep", "--host", "jack", "--json", "--from", "-40", "--to", "-20", "--step", "0.5",
             "--settle", "200ms", "--wait", "20s",
         ])
-        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .envs(env)
         .stdin(Stdio::null())
         .stdout(Stdio::piped())
         .stderr(std::fs::File::create(&err_path).unwrap())
@@ -1718,7 +1696,7 @@ fn jack_sweep_stops_on_ctrl_c() {
     );
     assert!(out.stdout.is_empty(), "no report on stdout");
     let lsp = Command::new("jack_lsp")
-        .envs(env.iter().map(|(k, v)| (*k, v.as_os_str())))
+        .envs(env)
         .stdin(Stdio::null())
         .output()
         .unwrap();
