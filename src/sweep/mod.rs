@@ -427,7 +427,11 @@ fn open_rig<E: Write>(
             .map(|c| c.sample_rate())
             .map_err(|e| {
                 (
-                    format!("cannot read the output's preferred rate ({e}); give --rate"),
+                    format!(
+                        "output '{}' gives no preferred rate ({e}): check that it is there \
+                         (`brink devices`), or give --rate",
+                        capture::device_name(&out_dev)
+                    ),
                     crate::EXIT_USAGE,
                 )
             })?,
