@@ -228,7 +228,7 @@ fn clip_to_screen(clip_s: f64) -> Res<f64> {
     let mut d = Dashboard::new(session.meta.clone(), "bench", Ballistics::SamplePeak, 1.0);
     let (tx, rx) = crossbeam_channel::unbounded();
     let stop = Arc::new(AtomicBool::new(false));
-    let feeder = feed::spawn_live(session, tx, Arc::clone(&stop), 1.0)?;
+    let feeder = feed::spawn_live(session, tx, Arc::clone(&stop))?;
     let seen = Arc::new(Mutex::new(None));
     let backend = Probe {
         inner: TestBackend::new(80, 24),

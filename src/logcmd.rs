@@ -44,8 +44,12 @@ pub struct LogArgs {
     pub looping: bool,
     /// Play a file input as fast as it can be read; frames the analysis cannot keep up with are
     /// dropped and reported (a stress test of the pipeline).
-    #[arg(long)]
+    #[arg(long, conflicts_with = "fast")]
     pub unpaced: bool,
+    /// Play a file input as fast as the analysis takes it, waiting for room so that nothing is
+    /// dropped: a whole file through the live pipeline in less than its length.
+    #[arg(long)]
+    pub fast: bool,
     /// Interval of summary records (e.g. 250ms, 1s).
     #[arg(long, default_value = "1s", value_parser = crate::gen::parse_duration)]
     pub every: Duration,
@@ -142,7 +146,9 @@ fn run<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
         Some(path) => SourceSpec::File {
             path: PathBuf::from(path),
             looping: args.looping,
-            pace: if args.unpaced {
+            pace: if args.fast {
+                Pace::Lossless
+            } else if args.unpaced {
                 Pace::Unpaced
             } else {
                 Pace::RealTime

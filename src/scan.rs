@@ -3,11 +3,10 @@
 use std::path::Path;
 use std::sync::Arc;
 
-use crate::analysis::report::{
-    ChannelReport, ScanReport, SliceChannel, TimelineSlice, SCAN_FORMAT,
-};
-use crate::analysis::{ChannelAnalyzer, ChannelSettings};
+use crate::analysis::report::{ChannelReport, ScanReport, TimelineSlice, SCAN_FORMAT};
+use crate::analysis::{ChannelAnalyzer, ChannelSettings, IntervalReading};
 use crate::dsp::clip::ClipSettings;
+use crate::dsp::tone::ToneAnalyzer;
 use crate::source::wav::{WavError, WavSource};
 use std::collections::VecDeque;
 use std::ops::Range;
@@ -64,8 +63,8 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
     let slice_len = settings
         .every_s
         .map(|s| (s * rate as f64).round().max(1.0) as u64);
-    let analyzers: Vec<ChannelAnalyzer> = (0..info.channels)
-        .map(|c| ChannelAnalyzer::new(c + 1, rate, chs.clone(), span.clone(), slice_len))
+    let analyzers: Vec<ScanChannel> = (0..info.channels)
+        .map(|c| ScanChannel::new(c + 1, rate, chs.clone(), span.clone(), slice_len))
         .collect();
 
     let n_ch = info.channels;
@@ -75,11 +74,12 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
         let helpers: Vec<_> = (1..threads.min(n_ch + 1))
             .map(|t| {
                 let pool = &pool;
-                scope.spawn(move || pool.work_until_done(t))
+                scope.spawn(move || pool.work_until_done(t, &mut ToneAnalyzer::new()))
             })
             .collect();
         let mut frames = 0u64;
         let mut result = Ok(());
+        let mut tone = ToneAnalyzer::new();
         let mut inter = Vec::with_capacity(BLOCK_FRAMES * n_ch);
         loop {
             match src.read_frames(&mut inter, BLOCK_FRAMES) {
@@ -93,7 +93,7 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
                         plane.clear();
                         plane.extend(inter.chunks_exact(n_ch).map(|frame| frame[c]));
                     }
-                    pool.push(planes, 0);
+                    pool.push(planes, 0, &mut tone);
                 }
                 Err(e) => {
                     result = Err(e);
@@ -102,7 +102,7 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
             }
         }
         pool.close();
-        pool.work_until_done(0);
+        pool.work_until_done(0, &mut tone);
         for h in helpers {
             if let Err(panic) = h.join() {
                 std::panic::resume_unwind(panic);
@@ -175,8 +175,79 @@ struct Lane {
 }
 
 struct LaneState {
-    analyzer: ChannelAnalyzer,
+    analyzer: ScanChannel,
     next: u64,
+}
+
+/// One channel of a scan: the channel analyser, and the `--every` slices it has given.
+struct ScanChannel {
+    analyzer: ChannelAnalyzer,
+    /// Slice length (frames), with `--every`.
+    every: Option<u64>,
+    slices: Vec<IntervalReading>,
+}
+
+impl ScanChannel {
+    fn new(
+        channel: usize,
+        rate: u32,
+        settings: ChannelSettings,
+        span: Range<u64>,
+        every: Option<u64>,
+    ) -> Self {
+        let every = every.filter(|&l| l > 0);
+        let mut analyzer = ChannelAnalyzer::new(channel, rate, settings)
+            .keep_span(span)
+            .keep_details();
+        if let Some(len) = every {
+            analyzer = analyzer.keep_window(len.min(1 << 24) as usize);
+        }
+        ScanChannel {
+            analyzer,
+            every,
+            slices: Vec::new(),
+        }
+    }
+
+    /// Feed a block, closing the slices it completes; the tone span is analysed as soon as it
+    /// is complete.
+    fn feed(&mut self, mut x: &[f32], tone: &mut ToneAnalyzer) {
+        while !x.is_empty() {
+            let take = match self.every {
+                Some(len) => ((len - self.analyzer.position() % len) as usize).min(x.len()),
+                None => x.len(),
+            };
+            self.analyzer.process(&x[..take], &mut |_| {});
+            x = &x[take..];
+            if self
+                .every
+                .is_some_and(|len| self.analyzer.position() % len == 0)
+            {
+                self.close_slice(tone);
+            }
+        }
+        if self.analyzer.span_ready() {
+            self.analyzer.analyse_span(tone);
+        }
+    }
+
+    fn close_slice(&mut self, tone: &mut ToneAnalyzer) {
+        if self.analyzer.interval_samples() == 0 {
+            return;
+        }
+        let reading = self.analyzer.analyse_window(tone, None);
+        self.slices
+            .push(self.analyzer.take_interval(reading.as_ref()));
+        self.analyzer.clear_window();
+    }
+
+    fn finish(&mut self, tone: &mut ToneAnalyzer) -> (ChannelReport, Vec<IntervalReading>) {
+        self.analyzer.close(&mut |_| {});
+        if self.every.is_some() {
+            self.close_slice(tone);
+        }
+        (self.analyzer.report(tone), std::mem::take(&mut self.slices))
+    }
 }
 
 struct Queue {
@@ -207,7 +278,7 @@ fn lock<T>(m: &Mutex<T>) -> MutexGuard<'_, T> {
 }
 
 impl Pool {
-    fn new(analyzers: Vec<ChannelAnalyzer>) -> Self {
+    fn new(analyzers: Vec<ScanChannel>) -> Self {
         Pool {
             lanes: analyzers
                 .into_iter()
@@ -233,7 +304,7 @@ impl Pool {
     }
 
     /// Queue a decoded block; while the queue is full, do analysis work instead of waiting.
-    fn push(&self, block: Planes, me: usize) {
+    fn push(&self, block: Planes, me: usize, tone: &mut ToneAnalyzer) {
         loop {
             {
                 let mut q = lock(&self.queue);
@@ -245,7 +316,7 @@ impl Pool {
                     return;
                 }
             }
-            if !self.work_once(me) {
+            if !self.work_once(me, tone) {
                 let q = lock(&self.queue);
                 if q.blocks.len() >= QUEUE {
                     let _ = self.changed.wait_timeout(q, Duration::from_millis(5));
@@ -260,7 +331,7 @@ impl Pool {
     }
 
     /// Process one block of some channel; false when no channel could take one now.
-    fn work_once(&self, me: usize) -> bool {
+    fn work_once(&self, me: usize, tone: &mut ToneAnalyzer) -> bool {
         let n = self.lanes.len();
         for k in 0..n {
             let lane = &self.lanes[(me + k) % n];
@@ -278,7 +349,7 @@ impl Pool {
             let Some(block) = block else { continue };
             let c = (me + k) % n;
             if let Some(plane) = block.get(c) {
-                st.analyzer.process(plane);
+                st.analyzer.feed(plane, tone);
             }
             st.next += 1;
             lane.next.store(st.next, Ordering::Release);
@@ -318,9 +389,9 @@ impl Pool {
     }
 
     /// Work until the queue is closed and every channel has taken every block.
-    fn work_until_done(&self, me: usize) {
+    fn work_until_done(&self, me: usize, tone: &mut ToneAnalyzer) {
         loop {
-            if self.work_once(me) {
+            if self.work_once(me, tone) {
                 continue;
             }
             let q = lock(&self.queue);
@@ -336,8 +407,8 @@ impl Pool {
     }
 
     /// Finish every channel (tone analysis included), two threads at a time.
-    fn finish(self) -> Vec<(ChannelReport, Vec<SliceChannel>)> {
-        let mut analyzers: Vec<ChannelAnalyzer> = self
+    fn finish(self) -> Vec<(ChannelReport, Vec<IntervalReading>)> {
+        let mut analyzers: Vec<ScanChannel> = self
             .lanes
             .into_iter()
             .map(|l| {
@@ -353,7 +424,13 @@ impl Pool {
             let handles: Vec<_> = analyzers
                 .chunks_mut(per)
                 .map(|group| {
-                    scope.spawn(move || group.iter_mut().map(|a| a.finish()).collect::<Vec<_>>())
+                    scope.spawn(move || {
+                        let mut tone = ToneAnalyzer::new();
+                        group
+                            .iter_mut()
+                            .map(|a| a.finish(&mut tone))
+                            .collect::<Vec<_>>()
+                    })
                 })
                 .collect();
             handles

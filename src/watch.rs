@@ -299,8 +299,7 @@ fn live(
     let mut d = dashboard(session.meta.clone(), mode, &screen);
     let (tx, rx) = unbounded();
     let stop = Arc::new(AtomicBool::new(false));
-    let window = screen.settings.tone_window_s;
-    let feeder = feed::spawn_live(session, tx, Arc::clone(&stop), window)
+    let feeder = feed::spawn_live(session, tx, Arc::clone(&stop))
         .map_err(|e| format!("cannot start the feed thread: {e}"))?;
     let shown = on_terminal(&mut d, &rx, &screen);
     stop.store(true, Ordering::Relaxed);

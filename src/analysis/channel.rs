@@ -1,5 +1,21 @@
-//! The per-channel analyser: levels, true peak and clip detection on every sample; clip runs
-//! gathered into episodes; a span kept for tone analysis; optional fixed-length slices.
+//! The one per-channel analyser that every mode drives: `scan` (whole files, `--every`
+//! slices), the live pipeline (`log`, the dashboard, `demo`), and `sweep` (each step's record).
+//!
+//! Samples go in with [`ChannelAnalyzer::process`], in blocks of any size: results never depend
+//! on how the stream was cut. Every sample passes through the level statistics, the BS.1770
+//! true-peak meter and the clip detector; clip runs gather into episodes, whose start and end
+//! are announced as [`ClipNotice`]s. At any time the caller may take an [`IntervalReading`]
+//! (levels and clip counts since the last one, with the tone figures that stand for the
+//! interval) and analyse the tone of what the analyser keeps:
+//! - a **window**, the latest N samples ([`ChannelAnalyzer::keep_window`]): the live tone window,
+//!   and `scan --every`'s slices (cleared at each interval);
+//! - a **span**, fixed stream positions ([`ChannelAnalyzer::keep_span`]): `scan`'s centre span,
+//!   a sweep step's record; analysed once, as soon as it is complete.
+//!
+//! Tone analysis borrows a [`ToneAnalyzer`] from the caller, so one analyser's FFT plans and
+//! buffers can serve many channels in turn (the live engine holds one; `scan` one per thread).
+//! [`ChannelAnalyzer::report`] gives the whole-stream [`ChannelReport`] (the `brink-scan-1`
+//! channel, also the snapshot shape).
 
 use std::ops::Range;
 
@@ -10,9 +26,10 @@ use crate::dsp::tone::{ToneAnalyzer, ToneReport, ToneSettings};
 use crate::dsp::truepeak::TruePeak;
 
 use super::episode::{Episode, EpisodeTracker};
+use super::reading::IntervalReading;
 use super::report::{
     ChannelReport, ClipEvent, ClipReport, DistortionReport, HarmonicReport, ImdProductReport,
-    ImdReport, LevelReport, SidedLevels, SliceChannel,
+    ImdReport, LevelReport, SidedLevels,
 };
 
 /// Settings for one channel's analysis.
@@ -42,25 +59,28 @@ impl Default for ChannelSettings {
     }
 }
 
+/// What an analyser says about clipping as it happens.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ClipNotice {
+    /// An episode has begun: raised with its first run, for lamps.
+    Started {
+        /// Over or flat top.
+        kind: ClipKind,
+        /// Start of the run (s).
+        t_s: f64,
+        /// Run level (dBFS).
+        level_dbfs: Option<f64>,
+    },
+    /// An episode has ended: no run has joined it for the merge gap (or the stream ended or
+    /// broke off).
+    Ended(ClipEvent),
+}
+
 /// Samples handed to the level statistics and true-peak meter at a time (the meter's block).
 const TP_BLOCK: usize = 4096;
 
 /// Most run levels kept per kind and side for the median clip level.
 const LEVELS_KEPT: usize = 65_536;
-
-/// Tally of clip runs for one channel.
-#[derive(Debug, Clone, Default)]
-struct ClipTally {
-    overs: u64,
-    flat_tops: u64,
-    clipped_samples: u64,
-    first: Option<u64>,
-    /// Run levels: [over, flat-top] × [positive, negative].
-    levels: [[Vec<f32>; 2]; 2],
-    episodes: EpisodeTracker,
-    events: Vec<ClipEvent>,
-    omitted: u64,
-}
 
 fn median_f32(v: &[f32]) -> Option<f32> {
     if v.is_empty() {
@@ -72,41 +92,58 @@ fn median_f32(v: &[f32]) -> Option<f32> {
     Some(*m)
 }
 
+/// Tally of clip runs for one channel.
+#[derive(Debug, Clone, Default)]
+struct ClipTally {
+    overs: u64,
+    flat_tops: u64,
+    /// Runs found since the last interval reading: (overs, flat tops).
+    interval: (u64, u64),
+    clipped_samples: u64,
+    first: Option<u64>,
+    /// Keep run levels and the episode list (the whole-stream report needs them; a live lane,
+    /// which only reports intervals and notices, does not).
+    details: bool,
+    /// Run levels: [over, flat-top] × [positive, negative].
+    levels: [[Vec<f32>; 2]; 2],
+    episodes: EpisodeTracker,
+    events: Vec<ClipEvent>,
+    omitted: u64,
+    max_events: usize,
+}
+
 impl ClipTally {
-    fn add(&mut self, run: ClipRun, rate: f64, s: &ChannelSettings) {
+    fn add(&mut self, run: &ClipRun) {
         let k = match run.kind {
             ClipKind::Over => {
                 self.overs += 1;
+                self.interval.0 += 1;
                 0
             }
             ClipKind::FlatTop => {
                 self.flat_tops += 1;
+                self.interval.1 += 1;
                 1
             }
         };
         self.clipped_samples += run.len;
         self.first = Some(self.first.map_or(run.start, |f| f.min(run.start)));
-        let side = usize::from(run.level < 0.0);
-        if self.levels[k][side].len() < LEVELS_KEPT {
-            self.levels[k][side].push(run.level.abs());
-        }
-        if let Some(ep) = self.episodes.add(&run) {
-            self.keep(ep, rate, s);
+        if self.details {
+            let side = usize::from(run.level < 0.0);
+            if self.levels[k][side].len() < LEVELS_KEPT {
+                self.levels[k][side].push(run.level.abs());
+            }
         }
     }
 
-    fn keep(&mut self, ep: Episode, rate: f64, s: &ChannelSettings) {
-        if self.events.len() < s.max_events {
-            self.events.push(ep.to_event(rate));
+    fn keep(&mut self, ep: &Episode, rate: f64) -> ClipEvent {
+        let event = ep.to_event(rate);
+        if self.details && self.events.len() < self.max_events {
+            self.events.push(event.clone());
         } else {
             self.omitted += 1;
         }
-    }
-
-    fn close_episode(&mut self, rate: f64, s: &ChannelSettings) {
-        if let Some(ep) = self.episodes.flush() {
-            self.keep(ep, rate, s);
-        }
+        event
     }
 
     fn report(&self, rate: f64) -> ClipReport {
@@ -130,15 +167,62 @@ impl ClipTally {
     }
 }
 
-/// Per-slice accumulators.
+/// The latest samples of a channel, oldest overwritten first.
 #[derive(Debug)]
-struct SliceState {
-    len: u64,
-    levels: LevelStats,
+struct Window {
     buf: Vec<f32>,
-    done: Vec<SliceChannel>,
-    /// Run counts by slice index: (overs, flat tops).
-    counts: Vec<(u64, u64)>,
+    /// Where the next sample goes (the oldest sample when full).
+    head: usize,
+    filled: usize,
+}
+
+impl Window {
+    fn new(len: usize) -> Self {
+        Window {
+            buf: vec![0.0; len.max(1)],
+            head: 0,
+            filled: 0,
+        }
+    }
+
+    fn push(&mut self, x: &[f32]) {
+        let n = self.buf.len();
+        let x = &x[x.len().saturating_sub(n)..];
+        let first = x.len().min(n - self.head);
+        self.buf[self.head..self.head + first].copy_from_slice(&x[..first]);
+        let rest = x.len() - first;
+        self.buf[..rest].copy_from_slice(&x[first..]);
+        self.head = (self.head + x.len()) % n;
+        self.filled = (self.filled + x.len()).min(n);
+    }
+
+    /// The samples kept, oldest first, as two slices.
+    fn parts(&self) -> (&[f32], &[f32]) {
+        let n = self.buf.len();
+        if self.filled == n {
+            let (newer, older) = self.buf.split_at(self.head);
+            (older, newer)
+        } else if self.head >= self.filled {
+            (&self.buf[self.head - self.filled..self.head], &[])
+        } else {
+            let wrap = self.filled - self.head;
+            (&self.buf[n - wrap..], &self.buf[..self.head])
+        }
+    }
+
+    fn clear(&mut self) {
+        self.head = 0;
+        self.filled = 0;
+    }
+}
+
+/// A fixed span of the stream kept for one tone analysis.
+#[derive(Debug)]
+struct Span {
+    range: Range<u64>,
+    buf: Vec<f32>,
+    /// The span's analyses, once made: tone, and IMD when asked for.
+    done: Option<(Option<ToneReport>, Option<ImdResult>)>,
 }
 
 /// Analyses one channel of a stream.
@@ -148,213 +232,269 @@ pub struct ChannelAnalyzer {
     rate: u32,
     settings: ChannelSettings,
     pos: u64,
-    levels: LevelStats,
+    /// Levels of the intervals already taken.
+    totals: LevelStats,
+    /// Levels since the last interval reading.
+    interval: LevelStats,
     tp: TruePeak,
     clip: ClipDetector,
     tally: ClipTally,
-    tone_span: Range<u64>,
-    tone_buf: Vec<f32>,
-    /// The span's analysis, done as soon as the span is complete.
-    tone_result: Option<Option<ToneReport>>,
-    /// The span's IMD analysis (when asked for), done with the tone analysis.
-    imd_result: Option<Option<ImdResult>>,
-    slices: Option<SliceState>,
-    tone: ToneAnalyzer,
+    span: Option<Span>,
+    window: Option<Window>,
 }
 
 impl ChannelAnalyzer {
-    /// An analyser for channel number `channel` (from 1) at `rate`, keeping samples in
-    /// `tone_span` (stream indices) for tone analysis, and cutting slices of `slice_len` samples
-    /// when given.
-    pub fn new(
-        channel: usize,
-        rate: u32,
-        settings: ChannelSettings,
-        tone_span: Range<u64>,
-        slice_len: Option<u64>,
-    ) -> Self {
-        let cap = (tone_span.end.saturating_sub(tone_span.start)).min(1 << 24) as usize;
+    /// An analyser for channel number `channel` (from 1) at `rate`. It keeps nothing for tone
+    /// analysis and no episode list until told to ([`ChannelAnalyzer::keep_span`],
+    /// [`ChannelAnalyzer::keep_window`], [`ChannelAnalyzer::keep_details`]).
+    pub fn new(channel: usize, rate: u32, settings: ChannelSettings) -> Self {
         let gap = (settings.merge_gap_s * rate as f64) as u64;
         ChannelAnalyzer {
             channel,
             rate,
             clip: ClipDetector::new(settings.clip),
-            settings,
-            pos: 0,
-            levels: LevelStats::default(),
-            tp: TruePeak::new(rate),
             tally: ClipTally {
                 episodes: EpisodeTracker::new(gap),
+                max_events: settings.max_events,
                 ..ClipTally::default()
             },
-            tone_buf: Vec::with_capacity(cap),
-            tone_span,
-            tone_result: None,
-            imd_result: None,
-            slices: slice_len.filter(|&l| l > 0).map(|len| SliceState {
-                len,
-                levels: LevelStats::default(),
-                buf: Vec::with_capacity(len.min(1 << 24) as usize),
-                done: Vec::new(),
-                counts: Vec::new(),
-            }),
-            tone: ToneAnalyzer::new(),
+            settings,
+            pos: 0,
+            totals: LevelStats::default(),
+            interval: LevelStats::default(),
+            tp: TruePeak::new(rate),
+            span: None,
+            window: None,
         }
     }
 
-    /// Feed the next samples of this channel.
-    pub fn process(&mut self, x: &[f32]) {
-        let rate = self.rate as f64;
-        let (tally, settings, slices) = (&mut self.tally, &self.settings, &mut self.slices);
-        self.clip.process(x, |run| {
-            if let Some(sl) = slices.as_mut() {
-                let idx = (run.start / sl.len) as usize;
-                if sl.counts.len() <= idx {
-                    sl.counts.resize(idx + 1, (0, 0));
-                }
-                match run.kind {
-                    ClipKind::Over => sl.counts[idx].0 += 1,
-                    ClipKind::FlatTop => sl.counts[idx].1 += 1,
-                }
-            }
-            tally.add(run, rate, settings);
+    /// Keep the samples at stream positions `range` for one tone analysis (the report's).
+    pub fn keep_span(mut self, range: Range<u64>) -> Self {
+        let cap = (range.end.saturating_sub(range.start)).min(1 << 24) as usize;
+        self.span = Some(Span {
+            range,
+            buf: Vec::with_capacity(cap),
+            done: None,
         });
+        self
+    }
 
-        // Keep the tone span.
+    /// Keep the latest `frames` samples for tone analysis of a sliding window.
+    pub fn keep_window(mut self, frames: usize) -> Self {
+        self.window = Some(Window::new(frames));
+        self
+    }
+
+    /// Keep run levels and the list of episodes for the whole-stream report.
+    pub fn keep_details(mut self) -> Self {
+        self.tally.details = true;
+        self
+    }
+
+    /// Channel number, from 1.
+    pub fn channel(&self) -> usize {
+        self.channel
+    }
+
+    /// Stream position: samples processed (and skipped over gaps).
+    pub fn position(&self) -> u64 {
+        self.pos
+    }
+
+    /// Feed the next samples of this channel; clip notices go to `notice`. Returns the largest
+    /// |sample| of the block.
+    pub fn process(&mut self, x: &[f32], notice: &mut impl FnMut(ClipNotice)) -> f32 {
+        let rate = self.rate as f64;
         let start = self.pos;
         let end = start + x.len() as u64;
-        let lo = self.tone_span.start.max(start);
-        let hi = self.tone_span.end.min(end);
-        if lo < hi {
-            self.tone_buf
-                .extend_from_slice(&x[(lo - start) as usize..(hi - start) as usize]);
-            if hi == self.tone_span.end {
-                // Analyse now, while the rest of the stream is still being read.
-                let rate = self.rate as f64;
-                let t = self.tone.analyze(&self.tone_buf, rate, &self.settings.tone);
-                self.tone_result = Some(t);
-                if let Some(s) = &self.settings.imd {
-                    self.imd_result = Some(imd::analyze(&self.tone_buf, rate, s));
-                }
-                self.tone_buf = Vec::new();
+        let tally = &mut self.tally;
+        self.clip.process(x, |run| {
+            tally.add(&run);
+            if let Some(closed) = tally.episodes.add(&run) {
+                notice(ClipNotice::Ended(tally.keep(&closed, rate)));
             }
+            if tally.episodes.open().is_some_and(|e| e.runs == 1) {
+                notice(ClipNotice::Started {
+                    kind: run.kind,
+                    t_s: run.start as f64 / rate,
+                    level_dbfs: amplitude_db(run.level.abs() as f64),
+                });
+            }
+        });
+        // An episode ends once no run can join it any more: the stream, and any run still in
+        // flight, are past its merge window.
+        let settled = self.clip.earliest_open_start().unwrap_or(end).min(end);
+        if let Some(closed) = self.tally.episodes.poll(settled) {
+            notice(ClipNotice::Ended(self.tally.keep(&closed, rate)));
         }
 
-        if self.slices.is_none() {
-            for block in x.chunks(TP_BLOCK) {
-                let peak = self.levels.process(block);
-                self.tp.process_with_peak(block, peak);
+        if let Some(span) = &mut self.span {
+            let lo = span.range.start.max(start);
+            let hi = span.range.end.min(end);
+            if lo < hi && span.done.is_none() {
+                span.buf
+                    .extend_from_slice(&x[(lo - start) as usize..(hi - start) as usize]);
             }
-        } else {
-            // Slices: levels per slice (merged into the totals when a slice closes) and the
-            // true-peak meter read per interval.
-            let mut rest = x;
-            let mut at = start;
-            while !rest.is_empty() {
-                let Some(sl) = self.slices.as_mut() else {
-                    break;
-                };
-                let room = (sl.len - at % sl.len) as usize;
-                let take = room.min(rest.len());
-                for block in rest[..take].chunks(TP_BLOCK) {
-                    let peak = sl.levels.process(block);
-                    self.tp.process_with_peak(block, peak);
-                }
-                sl.buf.extend_from_slice(&rest[..take]);
-                at += take as u64;
-                rest = &rest[take..];
-                if at % sl.len == 0 {
-                    self.close_slice();
-                }
-            }
+        }
+        if let Some(w) = &mut self.window {
+            w.push(x);
+        }
+
+        let mut peak = 0.0f32;
+        for block in x.chunks(TP_BLOCK) {
+            let p = self.interval.process(block);
+            self.tp.process_with_peak(block, p);
+            peak = peak.max(p);
         }
         self.pos = end;
+        peak
     }
 
-    fn close_slice(&mut self) {
+    /// The span is complete and not analysed yet: call [`ChannelAnalyzer::analyse_span`] now,
+    /// while the rest of the stream is still being read.
+    pub fn span_ready(&self) -> bool {
+        self.span
+            .as_ref()
+            .is_some_and(|s| s.done.is_none() && self.pos >= s.range.end)
+    }
+
+    /// Analyse the span (as far as it got) now; its samples are released.
+    pub fn analyse_span(&mut self, tone: &mut ToneAnalyzer) {
         let rate = self.rate as f64;
-        let channel = self.channel;
-        let Some(sl) = self.slices.as_mut() else {
+        let Some(span) = &mut self.span else {
             return;
         };
-        if sl.buf.is_empty() {
+        if span.done.is_some() {
             return;
         }
-        let tone = self.tone.analyze(&sl.buf, rate, &self.settings.tone);
-        self.levels.merge(&sl.levels);
-        sl.done.push(SliceChannel {
-            channel,
-            sample_peak_dbfs: amplitude_db(sl.levels.peak as f64),
-            true_peak_dbtp: amplitude_db(self.tp.take_interval_peak() as f64),
-            rms_dbfs: rms_dbfs(sl.levels.rms()),
-            overs: 0,
-            flat_tops: 0,
-            fundamental_hz: tone.as_ref().map(|t| t.fundamental_hz),
-            fundamental_dbfs: tone
-                .as_ref()
-                .and_then(|t| amplitude_db(t.fundamental_amplitude)),
-            thd_pct: tone.as_ref().and_then(|t| t.thd_ratio).map(|t| 100.0 * t),
-            thd_n_db: tone.as_ref().and_then(|t| amplitude_db(t.thd_n_ratio)),
-        });
-        sl.levels = LevelStats::default();
-        sl.buf.clear();
+        let t = tone.analyze(&span.buf, rate, &self.settings.tone);
+        let i = self
+            .settings
+            .imd
+            .as_ref()
+            .and_then(|s| imd::analyze(&span.buf, rate, s));
+        span.done = Some((t, i));
+        span.buf = Vec::new();
     }
 
-    /// End of stream: close open runs, episodes and the last slice, and analyse the tone span.
-    pub fn finish(&mut self) -> (ChannelReport, Vec<SliceChannel>) {
+    /// The window holds as many samples as it can.
+    pub fn window_full(&self) -> bool {
+        self.window
+            .as_ref()
+            .is_some_and(|w| w.filled == w.buf.len())
+    }
+
+    /// Analyse the tone of the window (what it holds, oldest first). `hint_hz`, the fundamental
+    /// of an earlier overlapping window, speeds the fit up without moving its result.
+    pub fn analyse_window(
+        &self,
+        tone: &mut ToneAnalyzer,
+        hint_hz: Option<f64>,
+    ) -> Option<DistortionReport> {
+        let w = self.window.as_ref()?;
         let rate = self.rate as f64;
-        let (tally, settings) = (&mut self.tally, &self.settings);
+        let (older, newer) = w.parts();
+        let t = tone.analyze_parts(older, newer, rate, &self.settings.tone, hint_hz)?;
+        let start = self.pos.saturating_sub(w.filled as u64) as f64 / rate;
+        Some(distortion_report(&t, start, rate))
+    }
+
+    /// Forget the window's samples (a new interval's window starts empty).
+    pub fn clear_window(&mut self) {
+        if let Some(w) = &mut self.window {
+            w.clear();
+        }
+    }
+
+    /// The reading of the interval since the last call (or the start), with `tone` standing for
+    /// its tone figures; a new interval starts.
+    pub fn take_interval(&mut self, tone: Option<&DistortionReport>) -> IntervalReading {
+        let tp = self.tp.take_interval_peak();
+        let counts = std::mem::take(&mut self.tally.interval);
+        let reading = IntervalReading::new(self.channel, &self.interval, tp, counts, tone);
+        self.totals.merge(&self.interval);
+        self.interval = LevelStats::default();
+        reading
+    }
+
+    /// Highest true peak since the last call (for meter frames; independent of intervals).
+    pub fn take_frame_true_peak(&mut self) -> f32 {
+        self.tp.take_frame_peak()
+    }
+
+    /// Samples seen since the last interval reading.
+    pub fn interval_samples(&self) -> u64 {
+        self.interval.count
+    }
+
+    /// The stream skips `frames` lost frames; call [`ChannelAnalyzer::restart`] next.
+    pub fn skip(&mut self, frames: u64) {
+        self.pos += frames;
+    }
+
+    /// The stream starts over here (after a gap, or a reconnected input): the open episode is
+    /// closed, and the state that spans samples (interpolator history, plateaus in progress,
+    /// the window) is reset. Readings are kept.
+    pub fn restart(&mut self, notice: &mut impl FnMut(ClipNotice)) {
+        let rate = self.rate as f64;
+        if let Some(closed) = self.tally.episodes.flush() {
+            notice(ClipNotice::Ended(self.tally.keep(&closed, rate)));
+        }
+        self.tp.reset();
+        self.clip.reset_at(self.pos);
+        self.clear_window();
+    }
+
+    /// End of stream: report runs still open and close the open episode.
+    pub fn close(&mut self, notice: &mut impl FnMut(ClipNotice)) {
+        let rate = self.rate as f64;
         let mut late = Vec::new();
         self.clip.finish(|run| late.push(run));
         for run in late {
-            tally.add(run, rate, settings);
+            self.tally.add(&run);
+            if let Some(closed) = self.tally.episodes.add(&run) {
+                notice(ClipNotice::Ended(self.tally.keep(&closed, rate)));
+            }
         }
-        self.tally.close_episode(rate, &self.settings);
-        self.close_slice();
+        if let Some(closed) = self.tally.episodes.flush() {
+            notice(ClipNotice::Ended(self.tally.keep(&closed, rate)));
+        }
+    }
 
-        let tone = match self.tone_result.take() {
-            Some(t) => t,
-            None => self.tone.analyze(&self.tone_buf, rate, &self.settings.tone),
+    /// The whole stream's report: levels, clipping, and the span's tone (analysed now if it
+    /// was not yet). Call after [`ChannelAnalyzer::close`].
+    pub fn report(&mut self, tone: &mut ToneAnalyzer) -> ChannelReport {
+        let rate = self.rate as f64;
+        self.analyse_span(tone);
+        let (tone_report, imd_result, span_start) = match &mut self.span {
+            Some(span) => {
+                let (t, i) = span.done.take().unwrap_or((None, None));
+                let start = span.range.start.min(self.pos) as f64 / rate;
+                (t, i, start)
+            }
+            None => (None, None, 0.0),
         };
-        let imd_result = match (self.imd_result.take(), &self.settings.imd) {
-            (Some(r), _) => r,
-            (None, Some(s)) => imd::analyze(&self.tone_buf, rate, s),
-            (None, None) => None,
-        };
-        let span_start = self.tone_span.start.min(self.pos) as f64 / rate;
-        let distortion = tone.map(|t| distortion_report(&t, span_start, rate));
+        let distortion = tone_report.map(|t| distortion_report(&t, span_start, rate));
         let imd = imd_result.map(|r| imd_report(&r, span_start, rate));
-        let peak = self.levels.peak as f64;
+        let mut levels = self.totals;
+        levels.merge(&self.interval);
+        let peak = levels.peak as f64;
         let tp = self.tp.peak() as f64;
-        let report = ChannelReport {
+        ChannelReport {
             channel: self.channel,
             level: LevelReport {
                 sample_peak_dbfs: amplitude_db(peak),
                 true_peak_dbtp: amplitude_db(tp),
-                rms_dbfs: rms_dbfs(self.levels.rms()),
-                crest_db: self.levels.crest_db(),
-                dc_offset: self.levels.mean(),
+                rms_dbfs: rms_dbfs(levels.rms()),
+                crest_db: levels.crest_db(),
+                dc_offset: levels.mean(),
                 headroom_db: amplitude_db(tp).map(|d| -d),
                 true_peak_oversampling: self.tp.factor(),
             },
             clipping: self.tally.report(rate),
             distortion,
             imd,
-        };
-        let mut slices = self
-            .slices
-            .as_mut()
-            .map(|s| std::mem::take(&mut s.done))
-            .unwrap_or_default();
-        if let Some(sl) = &self.slices {
-            for (i, (o, f)) in sl.counts.iter().enumerate() {
-                if let Some(s) = slices.get_mut(i) {
-                    s.overs = *o;
-                    s.flat_tops = *f;
-                }
-            }
         }
-        (report, slices)
     }
 }
 

@@ -1,8 +1,11 @@
-//! Stateful analysers built on `dsp`: per-channel measurement and its reports.
+//! Stateful analysers built on `dsp`: the one per-channel analyser every mode drives, and the
+//! reading and report types it gives.
 
 pub mod channel;
 pub mod character;
 pub mod episode;
+pub mod reading;
 pub mod report;
 
-pub use channel::{ChannelAnalyzer, ChannelSettings};
+pub use channel::{ChannelAnalyzer, ChannelSettings, ClipNotice};
+pub use reading::IntervalReading;

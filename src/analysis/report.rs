@@ -3,6 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::reading::IntervalReading;
 use crate::dsp::clip::ClipKind;
 
 /// Format tag of a scan report.
@@ -221,31 +222,6 @@ pub struct TimelineSlice {
     pub t_s: f64,
     /// Slice end (s).
     pub end_s: f64,
-    /// Per channel.
-    pub channels: Vec<SliceChannel>,
-}
-
-/// One channel's readings in a slice.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct SliceChannel {
-    /// Channel number, from 1.
-    pub channel: usize,
-    /// Sample peak (dBFS).
-    pub sample_peak_dbfs: Option<f64>,
-    /// True peak (dBTP).
-    pub true_peak_dbtp: Option<f64>,
-    /// RMS, AES17 (dBFS).
-    pub rms_dbfs: Option<f64>,
-    /// Overs starting in the slice.
-    pub overs: u64,
-    /// Flat tops starting in the slice.
-    pub flat_tops: u64,
-    /// Fundamental, when the slice carries a tone (Hz).
-    pub fundamental_hz: Option<f64>,
-    /// Fundamental level (dBFS).
-    pub fundamental_dbfs: Option<f64>,
-    /// THD (%).
-    pub thd_pct: Option<f64>,
-    /// THD+N (dB).
-    pub thd_n_db: Option<f64>,
+    /// Per channel: the same reading a live log's summary carries.
+    pub channels: Vec<IntervalReading>,
 }

@@ -150,6 +150,16 @@ impl ClipDetector {
         self.pos
     }
 
+    /// Stream index of the earliest sample of a run still in flight (an over or a plateau that
+    /// may yet be reported), if any: no run reported later can start before it, nor before
+    /// [`ClipDetector::position`].
+    pub fn earliest_open_start(&self) -> Option<u64> {
+        let over = self.over.map(|o| o.start);
+        let run = self.run.map(|r| r.start);
+        let pending = self.pending.map(|p| p.run.start);
+        [over, run, pending].into_iter().flatten().min()
+    }
+
     /// Start over after a gap at stream index `pos`: runs in progress are dropped, not reported.
     pub fn reset_at(&mut self, pos: u64) {
         self.pos = pos;

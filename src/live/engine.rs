@@ -2,28 +2,26 @@
 //! no clock (time is the sample count), so the same engine serves the analysis thread, the
 //! headless logger and deterministic tests.
 //!
-//! Per channel, every block: levels, true peak and clip detection. Clip runs gather into episodes
-//! ([`EpisodeTracker`]); an episode's first run raises [`LiveEvent::ClipStarted`] at once, and the
+//! Each analysed channel is a lane: the one per-channel analyser every mode drives
+//! ([`ChannelAnalyzer`]: levels, true peak, clip detection, episodes, the tone window), plus what
+//! only live work needs, which sits here beside it: meter ballistics and their frames, the
+//! schedule of tone analyses (the lanes take turns), and onset tracking across analyses
+//! ([`OnsetTracker`]). An episode's first run raises [`LiveEvent::ClipStarted`] at once, and the
 //! whole episode is reported as one [`LiveEvent::Clip`] when no run has joined it for the merge
 //! gap. Several times a second the last `tone_window_s` of each channel is analysed for its tone;
 //! the first time THD passes the onset threshold, [`LiveEvent::Onset`] reports the fundamental
-//! level at which it happened (interpolated between the two analyses either side). Every
-//! `summary_every_s`, a [`LiveEvent::Summary`] carries interval maxima and counts. For a screen,
+//! level at which it happened. Every `summary_every_s`, a [`LiveEvent::Summary`] carries each
+//! channel's [`IntervalReading`], the same reading `scan --every` gives. For a screen,
 //! `meter_every_s` adds [`LiveEvent::Meters`] (every meter ballistics' needle, and the peaks since
 //! the last frame) and `tone_events` a [`LiveEvent::Tone`] per analysis.
 
-use std::collections::BTreeMap;
-
-use serde::Serialize;
-
-use crate::analysis::episode::EpisodeTracker;
-use crate::analysis::report::ClipEvent;
-use crate::analysis::ChannelSettings;
+use crate::analysis::report::{ClipEvent, DistortionReport};
+use crate::analysis::{ChannelAnalyzer, ChannelSettings, ClipNotice, IntervalReading};
 use crate::dsp::ballistics::{Ballistics, Meter};
-use crate::dsp::clip::{ClipDetector, ClipKind};
-use crate::dsp::level::{amplitude_db, rms_dbfs, LevelStats};
-use crate::dsp::tone::{ToneAnalyzer, ToneReport};
-use crate::dsp::truepeak::TruePeak;
+use crate::dsp::clip::ClipKind;
+use crate::dsp::tone::ToneAnalyzer;
+
+pub use super::onset::{Onset, OnsetTracker};
 
 /// Settings of the live engine.
 #[derive(Debug, Clone, PartialEq)]
@@ -58,43 +56,6 @@ impl Default for EngineSettings {
     }
 }
 
-/// One channel's readings over a summary interval (`null` in JSON when not meaningful).
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct ChannelSummary {
-    /// Channel number, from 1.
-    pub channel: usize,
-    /// Highest sample peak in the interval (dBFS).
-    pub sample_peak_dbfs: Option<f64>,
-    /// Highest true peak in the interval (dBTP).
-    pub true_peak_dbtp: Option<f64>,
-    /// RMS over the interval, AES17 (dBFS).
-    pub rms_dbfs: Option<f64>,
-    /// Overs that started in the interval.
-    pub overs: u64,
-    /// Flat tops that started in the interval.
-    pub flat_tops: u64,
-    /// Fundamental of the latest tone analysis in the interval (Hz).
-    pub fundamental_hz: Option<f64>,
-    /// Its level (dBFS).
-    pub fundamental_dbfs: Option<f64>,
-    /// THD (%).
-    pub thd_pct: Option<f64>,
-    /// THD+N (dB).
-    pub thd_n_db: Option<f64>,
-    /// Odd/even balance (dB).
-    pub odd_even_db: Option<f64>,
-    /// SINAD (dB).
-    pub sinad_db: Option<f64>,
-    /// Harmonic fall-off (dB per octave of order).
-    pub falloff_db_per_octave: Option<f64>,
-    /// Harmonic levels by order (dBc).
-    pub harmonics_dbc: BTreeMap<String, Option<f64>>,
-    /// Harmonic phases by order, relative to the fundamental (degrees, sine convention).
-    pub harmonics_phase_deg: BTreeMap<String, f64>,
-    /// Noise floor of the tone analysis (dBc in one harmonic's bandwidth).
-    pub noise_floor_dbc: Option<f64>,
-}
-
 /// One channel's meters at a meter frame.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct MeterFrame {
@@ -109,19 +70,6 @@ pub struct MeterFrame {
     pub readings: [f64; 4],
 }
 
-/// The first crossing of the onset threshold on a channel.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Onset {
-    /// Channel number, from 1.
-    pub channel: usize,
-    /// Stream time of the analysis that crossed (s).
-    pub t_s: f64,
-    /// The threshold (%).
-    pub thd_pct: f64,
-    /// Fundamental level at the crossing, interpolated in dB between the analyses either side.
-    pub fundamental_dbfs: Option<f64>,
-}
-
 /// What the engine reports.
 #[derive(Debug, Clone, PartialEq)]
 pub enum LiveEvent {
@@ -130,7 +78,7 @@ pub enum LiveEvent {
         /// End of the interval in stream time (s).
         t_s: f64,
         /// Per channel.
-        channels: Vec<ChannelSummary>,
+        channels: Vec<IntervalReading>,
     },
     /// A clipping episode has begun (raised on its first run, for lamps).
     ClipStarted {
@@ -165,8 +113,8 @@ pub enum LiveEvent {
         channel: usize,
         /// Stream time at the end of the analysed record (s).
         t_s: f64,
-        /// The analysis.
-        report: Option<Box<ToneReport>>,
+        /// The analysis, in the form every report uses.
+        report: Option<Box<DistortionReport>>,
     },
     /// Frames were lost before this point; state spanning samples was reset.
     Gap {
@@ -177,31 +125,39 @@ pub enum LiveEvent {
     },
 }
 
+impl LiveEvent {
+    /// The event a channel analyser's clip notice makes.
+    fn from_notice(channel: usize, notice: ClipNotice) -> Self {
+        match notice {
+            ClipNotice::Started {
+                kind,
+                t_s,
+                level_dbfs,
+            } => LiveEvent::ClipStarted {
+                channel,
+                kind,
+                t_s,
+                level_dbfs,
+            },
+            ClipNotice::Ended(event) => LiveEvent::Clip { channel, event },
+        }
+    }
+}
+
 struct Lane {
-    /// Channel number reported (from 1); its sample is `frame[channel - 1]`.
-    channel: usize,
-    levels: LevelStats,
-    tp: TruePeak,
-    clip: ClipDetector,
-    episodes: EpisodeTracker,
-    overs: u64,
-    flat_tops: u64,
-    /// Circular history for tone analysis.
-    history: Vec<f32>,
-    head: usize,
-    filled: usize,
+    /// The channel's analyser (levels, true peak, clips, episodes, tone window); its channel
+    /// number `c` reads sample `frame[c - 1]`.
+    analyzer: ChannelAnalyzer,
     /// Stream position of this lane's next tone analysis (the lanes take turns, see
     /// [`Engine::stagger`]).
     next_tone: u64,
-    latest: Option<ToneReport>,
+    latest: Option<DistortionReport>,
     /// Fundamental of the lane's last tone analysis (starts the next fit).
     last_f0: Option<f64>,
-    /// Meters of every ballistics, and the peaks since the last meter frame.
+    /// Meters of every ballistics, and the sample peak since the last meter frame.
     meters: [Meter; 4],
     frame_peak: f32,
-    /// (THD %, fundamental dBFS) of the previous analysis, for the onset interpolation.
-    previous: Option<(f64, Option<f64>)>,
-    onset_seen: bool,
+    onset: OnsetTracker,
 }
 
 /// The engine. Feed it with [`Engine::process`]; events go to the closure given.
@@ -243,31 +199,21 @@ impl Engine {
         full_scale_bits: Option<u32>,
         settings: EngineSettings,
     ) -> Self {
-        let mut clip = settings.channel.clip;
-        clip.full_scale = crate::dsp::clip::ClipSettings::full_scale_for_bits(full_scale_bits);
+        let mut channel = settings.channel.clone();
+        channel.clip.full_scale =
+            crate::dsp::clip::ClipSettings::full_scale_for_bits(full_scale_bits);
         let r = rate as f64;
         let window = ((settings.tone_window_s * r).round() as usize).max(256);
-        let gap = (settings.channel.merge_gap_s * r) as u64;
         let tone_every = ((settings.tone_every_s * r).round() as u64).max(1);
         let lanes = (0..channels)
             .map(|c| Lane {
-                channel: c + 1,
-                levels: LevelStats::default(),
-                tp: TruePeak::new(rate),
-                clip: ClipDetector::new(clip),
-                episodes: EpisodeTracker::new(gap),
-                overs: 0,
-                flat_tops: 0,
-                history: vec![0.0; window],
-                head: 0,
-                filled: 0,
+                analyzer: ChannelAnalyzer::new(c + 1, rate, channel.clone()).keep_window(window),
                 next_tone: 0,
                 latest: None,
                 last_f0: None,
                 meters: Ballistics::ALL.map(|b| Meter::new(b, r)),
                 frame_peak: 0.0,
-                previous: None,
-                onset_seen: false,
+                onset: OnsetTracker::new(settings.onset_thd_pct),
             })
             .collect();
         let summary_every = settings
@@ -329,15 +275,17 @@ impl Engine {
     /// still carry every channel. Numbers outside the frame are ignored.
     pub fn select(mut self, channels: &[usize]) -> Self {
         let n = self.frame_channels;
-        self.lanes
-            .retain(|l| channels.contains(&l.channel) && l.channel <= n);
+        self.lanes.retain(|l| {
+            let c = l.analyzer.channel();
+            channels.contains(&c) && c <= n
+        });
         self.stagger();
         self
     }
 
     /// Channel numbers analysed.
     pub fn selected(&self) -> Vec<usize> {
-        self.lanes.iter().map(|l| l.channel).collect()
+        self.lanes.iter().map(|l| l.analyzer.channel()).collect()
     }
 
     /// Stream position in frames.
@@ -380,9 +328,9 @@ impl Engine {
             .lanes
             .iter_mut()
             .map(|lane| MeterFrame {
-                channel: lane.channel,
+                channel: lane.analyzer.channel(),
                 sample_peak: std::mem::take(&mut lane.frame_peak) as f64,
-                true_peak: lane.tp.take_frame_peak() as f64,
+                true_peak: lane.analyzer.take_frame_true_peak() as f64,
                 readings: std::array::from_fn(|i| lane.meters[i].reading()),
             })
             .collect();
@@ -394,115 +342,46 @@ impl Engine {
 
     fn process_span(&mut self, interleaved: &[f32], out: &mut impl FnMut(LiveEvent)) {
         let ch = self.frame_channels.max(1);
-        let start = self.pos;
         let frames = interleaved.len() / ch;
-        let rate = self.rate as f64;
         for lane in self.lanes.iter_mut() {
-            let c = lane.channel - 1;
+            let channel = lane.analyzer.channel();
             self.plane.clear();
             self.plane
-                .extend(interleaved.chunks_exact(ch).map(|f| f[c]));
-            let peak = lane.levels.process(&self.plane);
-            lane.tp.process_with_peak(&self.plane, peak);
+                .extend(interleaved.chunks_exact(ch).map(|f| f[channel - 1]));
+            let peak = lane.analyzer.process(&self.plane, &mut |n| {
+                out(LiveEvent::from_notice(channel, n));
+            });
             if self.meter_every.is_some() {
                 lane.frame_peak = lane.frame_peak.max(peak);
                 for m in &mut lane.meters {
                     m.process(&self.plane);
                 }
             }
-            let (episodes, overs, flats, channel) = (
-                &mut lane.episodes,
-                &mut lane.overs,
-                &mut lane.flat_tops,
-                lane.channel,
-            );
-            lane.clip.process(&self.plane, |run| {
-                match run.kind {
-                    ClipKind::Over => *overs += 1,
-                    ClipKind::FlatTop => *flats += 1,
-                }
-                if let Some(closed) = episodes.add(&run) {
-                    out(LiveEvent::Clip {
-                        channel,
-                        event: closed.to_event(rate),
-                    });
-                }
-                if episodes.open().is_some_and(|e| e.runs == 1) {
-                    out(LiveEvent::ClipStarted {
-                        channel,
-                        kind: run.kind,
-                        t_s: run.start as f64 / rate,
-                        level_dbfs: amplitude_db(run.level.abs() as f64),
-                    });
-                }
-            });
-            if let Some(closed) = lane.episodes.poll(start + frames as u64) {
-                out(LiveEvent::Clip {
-                    channel,
-                    event: closed.to_event(rate),
-                });
-            }
-            // History for tone analysis.
-            for &v in &self.plane {
-                lane.history[lane.head] = v;
-                lane.head = (lane.head + 1) % lane.history.len();
-            }
-            lane.filled = (lane.filled + frames).min(lane.history.len());
         }
         self.pos += frames as u64;
     }
 
     /// Analyse the tone of every lane whose turn has come.
     fn analyse_tones(&mut self, out: &mut impl FnMut(LiveEvent)) {
-        let rate = self.rate as f64;
         let t_s = self.t(self.pos);
-        let threshold = self.settings.onset_thd_pct;
         let (pos, every) = (self.pos, self.tone_every);
         for lane in &mut self.lanes {
             if lane.next_tone > pos {
                 continue;
             }
             lane.next_tone = pos + every;
-            if lane.filled < lane.history.len() {
+            if !lane.analyzer.window_full() {
                 continue;
             }
-            // The oldest sample sits at `head`.
-            let (newer, older) = lane.history.split_at(lane.head);
-            let hint = lane.last_f0;
-            let report =
-                self.tone
-                    .analyze_parts(older, newer, rate, &self.settings.channel.tone, hint);
-            if let Some((r, thd)) = report
-                .as_ref()
-                .and_then(|r| r.thd_ratio.map(|t| (r, 100.0 * t)))
-            {
-                let level = amplitude_db(r.fundamental_amplitude);
-                if !lane.onset_seen && thd >= threshold {
-                    lane.onset_seen = true;
-                    let at = match (lane.previous, level) {
-                        (Some((p_thd, Some(p_level))), Some(l))
-                            if p_thd < threshold && p_thd > 0.0 =>
-                        {
-                            // Interpolate the level where THD (in dB) meets the threshold.
-                            let (a, b, x) = (p_thd.log10(), thd.log10(), threshold.log10());
-                            let k = if b > a { (x - a) / (b - a) } else { 1.0 };
-                            Some(p_level + k * (l - p_level))
-                        }
-                        _ => level,
-                    };
-                    out(LiveEvent::Onset(Onset {
-                        channel: lane.channel,
-                        t_s,
-                        thd_pct: threshold,
-                        fundamental_dbfs: at,
-                    }));
-                }
-                lane.previous = Some((thd, level));
+            let report = lane.analyzer.analyse_window(&mut self.tone, lane.last_f0);
+            let channel = lane.analyzer.channel();
+            if let Some(onset) = lane.onset.observe(channel, t_s, report.as_ref()) {
+                out(LiveEvent::Onset(onset));
             }
             lane.last_f0 = report.as_ref().map(|r| r.fundamental_hz);
             if self.settings.tone_events {
                 out(LiveEvent::Tone {
-                    channel: lane.channel,
+                    channel,
                     t_s,
                     report: report.clone().map(Box::new),
                 });
@@ -519,46 +398,7 @@ impl Engine {
             .iter_mut()
             .map(|lane| {
                 let tone = lane.latest.take();
-                let s = ChannelSummary {
-                    channel: lane.channel,
-                    sample_peak_dbfs: (lane.levels.count > 0)
-                        .then(|| amplitude_db(lane.levels.peak as f64))
-                        .flatten(),
-                    true_peak_dbtp: amplitude_db(lane.tp.take_interval_peak() as f64),
-                    rms_dbfs: rms_dbfs(lane.levels.rms()),
-                    overs: std::mem::take(&mut lane.overs),
-                    flat_tops: std::mem::take(&mut lane.flat_tops),
-                    fundamental_hz: tone.as_ref().map(|t| t.fundamental_hz),
-                    fundamental_dbfs: tone
-                        .as_ref()
-                        .and_then(|t| amplitude_db(t.fundamental_amplitude)),
-                    thd_pct: tone.as_ref().and_then(|t| t.thd_ratio).map(|t| 100.0 * t),
-                    thd_n_db: tone.as_ref().and_then(|t| amplitude_db(t.thd_n_ratio)),
-                    odd_even_db: tone.as_ref().and_then(|t| t.odd_even_db),
-                    sinad_db: tone.as_ref().map(|t| t.sinad_db).filter(|v| v.is_finite()),
-                    falloff_db_per_octave: tone.as_ref().and_then(|t| t.falloff_db_per_octave),
-                    harmonics_dbc: tone
-                        .as_ref()
-                        .map(|t| {
-                            t.harmonics
-                                .iter()
-                                .map(|h| (h.order.to_string(), h.level_dbc))
-                                .collect()
-                        })
-                        .unwrap_or_default(),
-                    harmonics_phase_deg: tone
-                        .as_ref()
-                        .map(|t| {
-                            t.harmonics
-                                .iter()
-                                .map(|h| (h.order.to_string(), h.phase_deg))
-                                .collect()
-                        })
-                        .unwrap_or_default(),
-                    noise_floor_dbc: tone.as_ref().and_then(|t| t.noise_floor_dbc),
-                };
-                lane.levels = LevelStats::default();
-                s
+                lane.analyzer.take_interval(tone.as_ref())
             })
             .collect();
         out(LiveEvent::Summary { t_s, channels });
@@ -568,6 +408,9 @@ impl Engine {
     pub fn gap(&mut self, frames: u64, out: &mut impl FnMut(LiveEvent)) {
         let t_s = self.t(self.pos);
         self.pos += frames;
+        for lane in &mut self.lanes {
+            lane.analyzer.skip(frames);
+        }
         self.restart(out);
         out(LiveEvent::Gap { t_s, frames });
     }
@@ -575,18 +418,10 @@ impl Engine {
     /// The input starts over (a reconnected device): close open episodes and reset state
     /// spanning samples, without claiming a count of lost frames.
     pub fn restart(&mut self, out: &mut impl FnMut(LiveEvent)) {
-        let rate = self.rate as f64;
         for lane in &mut self.lanes {
-            if let Some(closed) = lane.episodes.flush() {
-                out(LiveEvent::Clip {
-                    channel: lane.channel,
-                    event: closed.to_event(rate),
-                });
-            }
-            lane.tp.reset();
-            lane.clip.reset_at(self.pos);
-            lane.filled = 0;
-            lane.head = 0;
+            let channel = lane.analyzer.channel();
+            lane.analyzer
+                .restart(&mut |n| out(LiveEvent::from_notice(channel, n)));
         }
         self.stagger();
         if self.next_summary != u64::MAX {
@@ -596,30 +431,14 @@ impl Engine {
 
     /// End of input: close open episodes and emit a last (partial) summary if one is due.
     pub fn finish(&mut self, out: &mut impl FnMut(LiveEvent)) {
-        let rate = self.rate as f64;
         for lane in &mut self.lanes {
-            let mut late = Vec::new();
-            lane.clip.finish(|run| late.push(run));
-            for run in late {
-                match run.kind {
-                    ClipKind::Over => lane.overs += 1,
-                    ClipKind::FlatTop => lane.flat_tops += 1,
-                }
-                if let Some(closed) = lane.episodes.add(&run) {
-                    out(LiveEvent::Clip {
-                        channel: lane.channel,
-                        event: closed.to_event(rate),
-                    });
-                }
-            }
-            if let Some(closed) = lane.episodes.flush() {
-                out(LiveEvent::Clip {
-                    channel: lane.channel,
-                    event: closed.to_event(rate),
-                });
-            }
+            let channel = lane.analyzer.channel();
+            lane.analyzer
+                .close(&mut |n| out(LiveEvent::from_notice(channel, n)));
         }
-        if self.summary_every.is_some() && self.lanes.iter().any(|l| l.levels.count > 0) {
+        if self.summary_every.is_some()
+            && self.lanes.iter().any(|l| l.analyzer.interval_samples() > 0)
+        {
             self.summary(out);
         }
     }
@@ -710,7 +529,7 @@ mod tests {
     fn steady_tone_summaries() {
         let x = tone(RATE as usize * 3, |_| 0.1, |_| 1.0);
         let (events, _) = run(&x, 480);
-        let sums: Vec<&Vec<ChannelSummary>> = events
+        let sums: Vec<&Vec<IntervalReading>> = events
             .iter()
             .filter_map(|e| match e {
                 LiveEvent::Summary { channels, .. } => Some(channels),

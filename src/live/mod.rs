@@ -4,6 +4,7 @@
 pub mod capture;
 pub mod devices;
 pub mod engine;
+pub mod onset;
 pub mod ring;
 pub mod run;
 pub mod session;

@@ -82,6 +82,11 @@ impl CaptureWriter {
         self.channels
     }
 
+    /// Whole frames the ring has room for now.
+    pub fn room_frames(&self) -> usize {
+        self.prod.vacant_len() / self.channels
+    }
+
     /// Copy the whole frames of `interleaved` that fit; count the rest as dropped.
     pub fn write(&mut self, interleaved: &[f32]) {
         let c = &self.counters;

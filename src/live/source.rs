@@ -19,6 +19,9 @@ pub enum Pace {
     RealTime,
     /// As fast as it can be written; frames that do not fit in the ring are dropped.
     Unpaced,
+    /// As fast as the analysis takes it: each write waits for room in the ring, so nothing is
+    /// dropped (a file through the live pipeline in less than its length).
+    Lossless,
 }
 
 /// A file source, opened and checked, ready to play.
@@ -75,6 +78,14 @@ impl FileSource {
                     break;
                 }
                 clock.wait();
+                if self.pace == Pace::Lossless {
+                    while writer.room_frames() < got {
+                        if stop.load(Ordering::Relaxed) {
+                            return Ok(());
+                        }
+                        std::thread::sleep(Duration::from_millis(1));
+                    }
+                }
                 writer.write(&buf);
                 clock.played(got);
             }

@@ -23,7 +23,8 @@ use std::time::{SystemTime, UNIX_EPOCH};
 use serde::Serialize;
 
 use crate::analysis::report::ClipEvent;
-use crate::live::engine::{ChannelSummary, LiveEvent, Onset};
+use crate::analysis::IntervalReading;
+use crate::live::engine::{LiveEvent, Onset};
 
 /// Format tag carried by the `start` record.
 pub const LOG_FORMAT: &str = "brink-log-1";
@@ -306,7 +307,7 @@ struct StartBody<'a> {
 #[derive(Serialize)]
 struct SummaryBody<'a> {
     t_s: Option<f64>,
-    channels: &'a [ChannelSummary],
+    channels: &'a [IntervalReading],
 }
 
 #[derive(Serialize)]
@@ -373,7 +374,7 @@ enum Record<'a> {
     Start(&'a LogMeta),
     Summary {
         t_s: f64,
-        channels: &'a [ChannelSummary],
+        channels: &'a [IntervalReading],
     },
     Clip {
         channel: usize,
@@ -1183,11 +1184,11 @@ mod tests {
         .unwrap()
     }
 
-    fn channel_summary(channel: usize, v: f64) -> ChannelSummary {
+    fn channel_summary(channel: usize, v: f64) -> IntervalReading {
         let mut harmonics = BTreeMap::new();
         harmonics.insert("2".to_string(), Some(-40.0));
         harmonics.insert("3".to_string(), Some(-52.5));
-        ChannelSummary {
+        IntervalReading {
             channel,
             sample_peak_dbfs: Some(v),
             true_peak_dbtp: Some(v + 0.5),

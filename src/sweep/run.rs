@@ -7,7 +7,8 @@ use std::time::{Duration, Instant};
 use super::report::SweepStep;
 use super::rig::{Rig, RigError};
 use super::stimulus::Wave;
-use crate::dsp::imd::{self, ImdMethod, ImdSettings};
+use crate::analysis::{ChannelAnalyzer, ChannelSettings};
+use crate::dsp::imd::{ImdMethod, ImdSettings};
 use crate::dsp::tone::{ToneAnalyzer, ToneSettings};
 
 /// Highest harmonic order a step reports in `harmonics_dbc`.
@@ -111,7 +112,8 @@ pub(crate) fn wave_of(stimulus: Stimulus, freq: f64) -> Wave {
     }
 }
 
-/// The measurer: plans FFTs once and keeps its buffers across steps.
+/// The measurer: each step's record goes through the one channel analyser every mode uses; the
+/// tone analyser (FFT plans, buffers) is kept across steps.
 struct Meter {
     tone: ToneAnalyzer,
     settings: ToneSettings,
@@ -121,14 +123,31 @@ struct Meter {
 impl Meter {
     /// Measure `buf` as the return of a step at (drive, freq); `None` when no tone came back.
     fn step(&mut self, plan: &SweepPlan, drive: f64, freq: f64, rate: f64) -> Option<SweepStep> {
+        let mut settings = ChannelSettings {
+            tone: self.settings.clone(),
+            ..ChannelSettings::default()
+        };
+        match plan.stimulus {
+            Stimulus::Sine => settings.tone.fundamental_hz = Some(freq),
+            Stimulus::Pair { method, f1, f2, .. } => {
+                settings.imd = Some(ImdSettings {
+                    tones_hz: Some((f1, f2)),
+                    ..ImdSettings::with_method(method)
+                });
+            }
+        }
         let x = &self.buf;
-        let peak = x.iter().fold(0f32, |m, v| m.max(v.abs()));
+        let mut analyzer = ChannelAnalyzer::new(plan.input_channel, rate.round() as u32, settings)
+            .keep_span(0..x.len() as u64);
+        analyzer.process(x, &mut |_| {});
+        analyzer.close(&mut |_| {});
+        let report = analyzer.report(&mut self.tone);
         let mut step = SweepStep {
             drive_dbfs: drive,
             frequency_hz: freq,
             return_dbfs: None,
             return_hz: None,
-            return_peak_dbfs: db(f64::from(peak)),
+            return_peak_dbfs: report.level.sample_peak_dbfs,
             thd_pct: None,
             thd_n_db: None,
             odd_even_db: None,
@@ -140,12 +159,11 @@ impl Meter {
         };
         match plan.stimulus {
             Stimulus::Sine => {
-                self.settings.fundamental_hz = Some(freq);
-                let t = self.tone.analyze(x, rate, &self.settings)?;
-                step.return_dbfs = db(t.fundamental_amplitude);
+                let t = report.distortion?;
+                step.return_dbfs = t.fundamental_dbfs;
                 step.return_hz = Some(t.fundamental_hz);
-                step.thd_pct = t.thd_ratio.map(|r| 100.0 * r);
-                step.thd_n_db = db(t.thd_n_ratio);
+                step.thd_pct = t.thd_pct;
+                step.thd_n_db = t.thd_n_db;
                 step.odd_even_db = t.odd_even_db;
                 step.falloff_db_per_octave = t.falloff_db_per_octave;
                 step.harmonics_dbc = t
@@ -155,16 +173,13 @@ impl Meter {
                     .map(|h| (h.order as u32, h.level_dbc))
                     .collect();
             }
-            Stimulus::Pair { method, f1, f2, .. } => {
-                let settings = ImdSettings {
-                    tones_hz: Some((f1, f2)),
-                    ..ImdSettings::with_method(method)
-                };
-                let r = imd::analyze(x, rate, &settings)?;
-                step.return_dbfs = db(r.f1_amplitude + r.f2_amplitude);
+            Stimulus::Pair { .. } => {
+                let r = report.imd?;
+                let amplitude = |db: Option<f64>| db.map_or(0.0, |d| 10f64.powf(d / 20.0));
+                step.return_dbfs = db(amplitude(r.f1_dbfs) + amplitude(r.f2_dbfs));
                 step.return_hz = Some(r.f1_hz);
-                step.imd_pct = Some(100.0 * r.ratio);
-                step.imd_db = db(r.ratio);
+                step.imd_pct = Some(r.imd_pct);
+                step.imd_db = r.imd_db;
             }
         }
         Some(step)

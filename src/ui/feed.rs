@@ -15,7 +15,6 @@ use crossbeam_channel::Sender;
 use serde::Deserialize;
 
 use super::model::{harmonic_report, Update};
-use crate::analysis::channel::distortion_report;
 use crate::analysis::report::{ClipEvent, DistortionReport};
 use crate::dsp::clip::ClipKind;
 use crate::live::engine::{LiveEvent, Onset};
@@ -23,7 +22,7 @@ use crate::live::run::Totals;
 use crate::live::session::{Notice, Session, SourceMeta, Step};
 
 /// The update a live finding makes (`None` for what the screen does not use).
-pub fn from_live(ev: LiveEvent, rate: f64, window_s: f64) -> Option<Update> {
+pub fn from_live(ev: LiveEvent) -> Option<Update> {
     Some(match ev {
         LiveEvent::Meters { t_s, channels } => Update::Meters { t_s, channels },
         LiveEvent::Tone {
@@ -33,7 +32,7 @@ pub fn from_live(ev: LiveEvent, rate: f64, window_s: f64) -> Option<Update> {
         } => Update::Tone {
             t_s,
             channel,
-            distortion: report.map(|r| distortion_report(&r, (t_s - window_s).max(0.0), rate)),
+            distortion: report.map(|r| *r),
         },
         LiveEvent::ClipStarted {
             channel,
@@ -61,16 +60,14 @@ pub fn spawn_live(
     mut session: Session,
     tx: Sender<Update>,
     stop: Arc<AtomicBool>,
-    window_s: f64,
 ) -> std::io::Result<JoinHandle<(Totals, Option<String>)>> {
     std::thread::Builder::new()
         .name("brink-feed".into())
         .spawn(move || {
-            let rate = f64::from(session.meta.sample_rate_hz);
             let mut last_health = Instant::now();
             let end = session.drive(&stop, |session, step| {
                 let update = match step {
-                    Step::Event(ev) => from_live(ev, rate, window_s),
+                    Step::Event(ev) => from_live(ev),
                     Step::Notice(Notice::Lost(r)) => Some(Update::InputLost(r)),
                     Step::Notice(Notice::Restored) => Some(Update::InputRestored),
                     Step::Notice(Notice::Trouble(_)) | Step::Idle => None,

@@ -1097,7 +1097,6 @@ mod tests {
             tone_events: true,
             ..EngineSettings::default()
         };
-        let window = settings.tone_window_s;
         let mut engine = Engine::new(rate, channels, None, settings);
         let mut d = Dashboard::new(
             meta((1..=channels).collect(), "stage-box (demo-tones)"),
@@ -1109,7 +1108,7 @@ mod tests {
         let block = (rate / 100) as usize * channels;
         for chunk in samples[..frames * channels].chunks(block) {
             engine.process(chunk, &mut |ev| {
-                if let Some(u) = from_live(ev, f64::from(rate), window) {
+                if let Some(u) = from_live(ev) {
                     d.apply(u);
                 }
             });

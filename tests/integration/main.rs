@@ -2,6 +2,7 @@
 #![allow(clippy::unwrap_used)] // tests state their expectations by unwrapping
 
 mod accuracy;
+mod agree;
 mod cli;
 mod closed_form;
 mod compare;

@@ -4,20 +4,24 @@ use std::f64::consts::PI;
 
 use brink::analysis::report::ChannelReport;
 use brink::analysis::{ChannelAnalyzer, ChannelSettings};
+use brink::dsp::tone::ToneAnalyzer;
 
 /// Run the per-channel analyser exactly as `scan` does, with the tone span covering everything.
 pub fn analyze(x: &[f32], rate: u32, settings: ChannelSettings) -> ChannelReport {
-    let mut a = ChannelAnalyzer::new(1, rate, settings, 0..x.len() as u64, None);
+    let mut a = ChannelAnalyzer::new(1, rate, settings)
+        .keep_span(0..x.len() as u64)
+        .keep_details();
     // Feed in uneven blocks, as a real source would.
     let mut rest = x;
     let mut k = 0;
     while !rest.is_empty() {
         let n = [4096, 1000, 333, 8192][k % 4].min(rest.len());
-        a.process(&rest[..n]);
+        a.process(&rest[..n], &mut |_| {});
         rest = &rest[n..];
         k += 1;
     }
-    a.finish().0
+    a.close(&mut |_| {});
+    a.report(&mut ToneAnalyzer::new())
 }
 
 /// `Σ amp·sin(2π·f·n/rate + phase)` over the components, as f64.
