@@ -59,7 +59,7 @@ impl Default for EngineSettings {
 }
 
 /// One channel's readings over a summary interval (`null` in JSON when not meaningful).
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct ChannelSummary {
     /// Channel number, from 1.
     pub channel: usize,
