@@ -3,13 +3,14 @@
 //! dashboard's `--follow`.
 //!
 //! A record is one NDJSON line `{"kind": ..., "time": ..., ...the record's own keys}` (see
-//! [`super::ndjson`]) or one or more CSV rows (see [`super::csv`]). Readings with no meaning
+//! [`super::ndjson`]) or one or more CSV rows (`csv.rs`, written only). Readings with no meaning
 //! (not finite) are `None`, JSON `null`. Text and lists are [`Cow`]s: the writer lends what it
 //! already holds (a summary's channel readings are not copied), the reader owns what it reads.
 //!
-//! Reading is as lenient as the dashboard always was: a missing `time`, `totals`, start detail
-//! (`format`, `host`, `device`, `sample_rate_hz`, `channels`), clip `samples` (0) or `runs` (1)
-//! or dropped `frames` (0) reads as that default. Every writer writes every key.
+//! Reading forgives a missing `time`, `totals`, start detail (`format`, `host`, `device`,
+//! `sample_rate_hz`, `channels`), clip `samples` (0) or `runs` (1) or dropped `frames` (0): each
+//! reads as that default; a missing reading (an `Option`) reads as `None`. Every other key is
+//! needed, and every writer writes every key.
 
 use std::borrow::Cow;
 
