@@ -465,4 +465,24 @@ mod tests {
         // start, 2 channels × (levels, tone), clip, onset, gap, lost, write-gap, restored, ended.
         assert_eq!(updates, [0, 4, 1, 1, 1, 1, 0, 1, 1]);
     }
+
+    #[test]
+    fn a_first_line_that_is_not_a_brink_log_1_start_is_refused_with_its_reason() {
+        let not_start = "not a brink-log-1 log: its first line is not a start record";
+        let summary = r#"{"kind":"summary","time":"x","t_s":1.0,"channels":[]}"#;
+        assert_eq!(parse_start(summary).unwrap_err(), not_start);
+        let other = r#"{"kind":"start","format":"brink-log-2","channels":[1]}"#;
+        assert_eq!(parse_start(other).unwrap_err(), not_start);
+        let unknown = r#"{"kind":"hello","time":"x"}"#;
+        assert_eq!(parse_start(unknown).unwrap_err(), not_start);
+        let no_channels = r#"{"kind":"start","format":"brink-log-1","host":"alsa"}"#;
+        assert_eq!(
+            parse_start(no_channels).unwrap_err(),
+            "the start record lists no channels"
+        );
+        for line in ["hello", r#"{"time":"x"}"#] {
+            let e = parse_start(line).unwrap_err();
+            assert!(e.starts_with("not a brink log (first line: "), "{e}");
+        }
+    }
 }
