@@ -2,7 +2,6 @@
 //! a headless log another brink process is writing (`--follow`). Each runs on its own thread and
 //! sends [`Update`]s; the screen thread only draws.
 
-use std::collections::BTreeMap;
 use std::fs::File;
 use std::io::{BufRead, BufReader, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
@@ -12,14 +11,15 @@ use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
 use crossbeam_channel::Sender;
-use serde::Deserialize;
 
 use super::model::{harmonic_report, Update};
 use crate::analysis::report::{ClipEvent, DistortionReport};
-use crate::dsp::clip::ClipKind;
 use crate::live::engine::{LiveEvent, Onset};
 use crate::live::run::Totals;
 use crate::live::session::{Notice, Session, SourceMeta, Step};
+use crate::sink::log::ndjson::{self, ReadError};
+use crate::sink::log::record::{IntervalReading, Record};
+use crate::sink::log::LOG_FORMAT;
 
 /// The update a live finding makes (`None` for what the screen does not use).
 pub fn from_live(ev: LiveEvent) -> Option<Update> {
@@ -97,120 +97,51 @@ pub fn spawn_live(
         })
 }
 
-/// A record of a brink-log-1 file, as much as the dashboard reads.
-#[derive(Debug, Deserialize)]
-struct Record {
-    kind: String,
-    #[serde(default)]
-    format: Option<String>,
-    #[serde(default)]
-    host: Option<String>,
-    #[serde(default)]
-    device: Option<String>,
-    #[serde(default)]
-    sample_rate_hz: Option<u32>,
-    #[serde(default)]
-    channels: Option<serde_json::Value>,
-    #[serde(default)]
-    t_s: Option<f64>,
-    #[serde(default)]
-    channel: Option<usize>,
-    #[serde(default)]
-    clip: Option<String>,
-    #[serde(default)]
-    level_dbfs: Option<f64>,
-    #[serde(default)]
-    samples: Option<u64>,
-    #[serde(default)]
-    end_s: Option<f64>,
-    #[serde(default)]
-    runs: Option<u64>,
-    #[serde(default)]
-    thd_pct: Option<f64>,
-    #[serde(default)]
-    fundamental_dbfs: Option<f64>,
-    #[serde(default)]
-    frames: Option<u64>,
-    #[serde(default)]
-    reason: Option<String>,
-}
-
-/// One channel of a summary record.
-#[derive(Debug, Deserialize)]
-struct SummaryChannel {
-    channel: usize,
-    sample_peak_dbfs: Option<f64>,
-    true_peak_dbtp: Option<f64>,
-    #[serde(default)]
-    overs: u64,
-    #[serde(default)]
-    flat_tops: u64,
-    fundamental_hz: Option<f64>,
-    fundamental_dbfs: Option<f64>,
-    thd_pct: Option<f64>,
-    thd_n_db: Option<f64>,
-    odd_even_db: Option<f64>,
-    #[serde(default)]
-    sinad_db: Option<f64>,
-    #[serde(default)]
-    falloff_db_per_octave: Option<f64>,
-    #[serde(default)]
-    harmonics_dbc: BTreeMap<String, Option<f64>>,
-    #[serde(default)]
-    harmonics_phase_deg: BTreeMap<String, f64>,
-    #[serde(default)]
-    noise_floor_dbc: Option<f64>,
-}
-
-impl SummaryChannel {
-    fn distortion(&self, t_s: f64) -> Option<DistortionReport> {
-        let f0 = self.fundamental_hz?;
-        let mut harmonics: Vec<_> = self
-            .harmonics_dbc
-            .iter()
-            .filter_map(|(k, v)| {
-                let order: usize = k.parse().ok()?;
-                let phase = self.harmonics_phase_deg.get(k).copied().unwrap_or(0.0);
-                Some(harmonic_report(order, f0, *v, phase, self.noise_floor_dbc))
-            })
-            .collect();
-        harmonics.sort_by_key(|h| h.order);
-        Some(DistortionReport {
-            fundamental_hz: f0,
-            fundamental_dbfs: self.fundamental_dbfs,
-            thd_pct: self.thd_pct,
-            thd_db: self
-                .thd_pct
-                .filter(|t| *t > 0.0)
-                .map(|t| 20.0 * (t / 100.0).log10()),
-            thd_n_db: self.thd_n_db,
-            thd_n_pct: self.thd_n_db.map_or(0.0, |d| 100.0 * 10f64.powf(d / 20.0)),
-            sinad_db: self.sinad_db,
-            enob_bits: None,
-            odd_even_db: self.odd_even_db,
-            falloff_db_per_octave: self.falloff_db_per_octave,
-            noise_floor_dbc: self.noise_floor_dbc,
-            span_start_s: t_s,
-            span_end_s: t_s,
-            harmonics,
+/// The dashboard's reading of one channel of a `summary` record.
+fn distortion(c: &IntervalReading, t_s: f64) -> Option<DistortionReport> {
+    let f0 = c.fundamental_hz?;
+    let mut harmonics: Vec<_> = c
+        .harmonics_dbc
+        .iter()
+        .filter_map(|(k, v)| {
+            let order: usize = k.parse().ok()?;
+            let phase = c.harmonics_phase_deg.get(k).copied().unwrap_or(0.0);
+            Some(harmonic_report(order, f0, *v, phase, c.noise_floor_dbc))
         })
-    }
+        .collect();
+    harmonics.sort_by_key(|h| h.order);
+    Some(DistortionReport {
+        fundamental_hz: f0,
+        fundamental_dbfs: c.fundamental_dbfs,
+        thd_pct: c.thd_pct,
+        thd_db: c
+            .thd_pct
+            .filter(|t| *t > 0.0)
+            .map(|t| 20.0 * (t / 100.0).log10()),
+        thd_n_db: c.thd_n_db,
+        thd_n_pct: c.thd_n_db.map_or(0.0, |d| 100.0 * 10f64.powf(d / 20.0)),
+        sinad_db: c.sinad_db,
+        enob_bits: None,
+        odd_even_db: c.odd_even_db,
+        falloff_db_per_octave: c.falloff_db_per_octave,
+        noise_floor_dbc: c.noise_floor_dbc,
+        span_start_s: t_s,
+        span_end_s: t_s,
+        harmonics,
+    })
 }
 
-/// The updates a log line makes (none for lines it does not know).
+/// The updates a log line makes (none for lines it does not know). The line is read as the
+/// log's own [`Record`] type, the one `brink log` writes.
 pub fn from_log_line(line: &str) -> Vec<Update> {
-    let Ok(r) = serde_json::from_str::<Record>(line) else {
+    let Ok(record) = ndjson::read(line) else {
         return Vec::new();
     };
-    let t_s = r.t_s.unwrap_or(0.0);
-    match r.kind.as_str() {
-        "summary" => {
-            let chans: Vec<SummaryChannel> = r
-                .channels
-                .and_then(|v| serde_json::from_value(v).ok())
-                .unwrap_or_default();
+    match record {
+        Record::Summary(s) => {
+            let t_s = s.t_s.unwrap_or(0.0);
             let mut out = Vec::new();
-            for c in chans {
+            for c in s.channels.iter() {
                 out.push(Update::Levels {
                     t_s,
                     channel: c.channel,
@@ -222,50 +153,36 @@ pub fn from_log_line(line: &str) -> Vec<Update> {
                 out.push(Update::Tone {
                     t_s,
                     channel: c.channel,
-                    distortion: c.distortion(t_s),
+                    distortion: distortion(c, t_s),
                 });
             }
             out
         }
-        "clip" => {
-            let kind = match r.clip.as_deref() {
-                Some("over") => ClipKind::Over,
-                Some("flat-top") => ClipKind::FlatTop,
-                _ => return Vec::new(),
-            };
-            let Some(channel) = r.channel else {
-                return Vec::new();
-            };
+        Record::Clip(c) => {
+            let t_s = c.t_s.unwrap_or(0.0);
             vec![Update::Clip {
-                channel,
+                channel: c.channel,
                 event: ClipEvent {
-                    kind,
+                    kind: c.clip,
                     start_s: t_s,
-                    end_s: r.end_s.unwrap_or(t_s),
-                    level_dbfs: r.level_dbfs,
-                    runs: r.runs.unwrap_or(1),
-                    samples: r.samples.unwrap_or(0),
+                    end_s: c.end_s.unwrap_or(t_s),
+                    level_dbfs: c.level_dbfs,
+                    runs: c.runs,
+                    samples: c.samples,
                 },
             }]
         }
-        "onset" => match r.channel {
-            Some(channel) => vec![Update::Onset(Onset {
-                channel,
-                t_s,
-                thd_pct: r.thd_pct.unwrap_or(0.0),
-                fundamental_dbfs: r.fundamental_dbfs,
-            })],
-            None => Vec::new(),
-        },
-        "dropped" => vec![Update::Gap {
-            frames: r.frames.unwrap_or(0),
-        }],
-        "input-lost" => vec![Update::InputLost(
-            r.reason.unwrap_or_else(|| "no reason given".into()),
-        )],
-        "input-restored" => vec![Update::InputRestored],
-        "stop" => vec![Update::Ended("the logger stopped".into())],
-        _ => Vec::new(),
+        Record::Onset(o) => vec![Update::Onset(Onset {
+            channel: o.channel,
+            t_s: o.t_s.unwrap_or(0.0),
+            thd_pct: o.thd_pct.unwrap_or(0.0),
+            fundamental_dbfs: o.fundamental_dbfs,
+        })],
+        Record::Dropped(d) => vec![Update::Gap { frames: d.frames }],
+        Record::InputLost(l) => vec![Update::InputLost(l.reason.into_owned())],
+        Record::InputRestored(_) => vec![Update::InputRestored],
+        Record::Stop(_) => vec![Update::Ended("the logger stopped".into())],
+        Record::Start(_) | Record::WriteGap(_) => Vec::new(),
     }
 }
 
@@ -299,21 +216,23 @@ fn parse_start(line: &str) -> Result<SourceMeta, String> {
     if line.trim_start().starts_with("time,") || line.contains(",kind,") {
         return Err("a CSV log: --follow reads NDJSON logs (brink log's default format)".into());
     }
-    let r: Record =
-        serde_json::from_str(line).map_err(|e| format!("not a brink log (first line: {e})"))?;
-    if r.kind != "start" || r.format.as_deref() != Some("brink-log-1") {
-        return Err("not a brink-log-1 log: its first line is not a start record".into());
+    let not_start = || "not a brink-log-1 log: its first line is not a start record".to_string();
+    match ndjson::read(line) {
+        Ok(Record::Start(s)) if s.format == LOG_FORMAT => {
+            if s.channels.is_empty() {
+                return Err("the start record lists no channels".into());
+            }
+            Ok(SourceMeta {
+                host: s.host.into_owned(),
+                device: s.device.into_owned(),
+                sample_rate_hz: s.sample_rate_hz,
+                channels: s.channels.into_owned(),
+            })
+        }
+        Ok(_) => Err(not_start()),
+        Err(ReadError::Record { kind, .. }) if kind != "start" => Err(not_start()),
+        Err(e) => Err(format!("not a brink log (first line: {e})")),
     }
-    let channels: Vec<usize> = r
-        .channels
-        .and_then(|v| serde_json::from_value(v).ok())
-        .ok_or("the start record lists no channels")?;
-    Ok(SourceMeta {
-        host: r.host.unwrap_or_default(),
-        device: r.device.unwrap_or_default(),
-        sample_rate_hz: r.sample_rate_hz.unwrap_or(0),
-        channels,
-    })
 }
 
 /// Follow a log as it grows (like `tail -f`), from its start: every complete line becomes
@@ -367,6 +286,12 @@ pub fn spawn_follow(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use std::borrow::Cow;
+
+    use crate::dsp::clip::ClipKind;
+    use crate::sink::log::record::{self, LogTotals};
+    use crate::sink::log::testkit::{channel_summary, clip, clock, meta, onset, summary, Shared};
+    use crate::sink::log::{LogFormat, LogWriter};
 
     #[test]
     fn log_lines_become_updates() {
@@ -404,5 +329,157 @@ mod tests {
             Update::Ended(_)
         ));
         assert!(parse_start("time,kind,t_s\n").is_err());
+    }
+
+    /// An output stream that fails (not a broken pipe) while `fail` is set.
+    struct Flaky {
+        out: Shared,
+        fail: Arc<AtomicBool>,
+    }
+
+    impl std::io::Write for Flaky {
+        fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+            if self.fail.load(Ordering::SeqCst) {
+                return Err(std::io::Error::other("test: the device is full"));
+            }
+            self.out.write(buf)
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            Ok(())
+        }
+    }
+
+    #[test]
+    fn every_record_kind_written_by_log_writer_is_read_back_by_the_follow_reader() {
+        let out = Shared::default();
+        let fail = Arc::new(AtomicBool::new(false));
+        let stream = Flaky {
+            out: out.clone(),
+            fail: Arc::clone(&fail),
+        };
+        let mut w = LogWriter::open_stream(
+            Box::new(stream),
+            LogFormat::Ndjson,
+            &meta(),
+            clock(),
+            Box::new(std::io::sink()),
+        );
+        w.event(&summary(1.0, 2));
+        w.event(&clip());
+        w.event(&onset());
+        w.event(&LiveEvent::Gap {
+            t_s: 5.0,
+            frames: 256,
+        });
+        w.input_lost(6.0, "device unplugged");
+        fail.store(true, Ordering::SeqCst);
+        w.input_restored(6.5); // lost: comes back as a write-gap
+        fail.store(false, Ordering::SeqCst);
+        w.input_restored(7.0);
+        w.stop(8.0, 3);
+
+        // The clock moves 1 ms per record made, from 07:12:03.123.
+        let at = |ms: u32| Cow::Owned(format!("2026-12-02T07:12:03.{ms}Z"));
+        let expected = vec![
+            Record::Start(record::Start {
+                time: at(123),
+                format: LOG_FORMAT.into(),
+                host: "alsa".into(),
+                device: "hw:CARD=PCH,DEV=0".into(),
+                sample_rate_hz: 48_000,
+                channels: vec![1, 2].into(),
+            }),
+            Record::Summary(record::Summary {
+                time: at(124),
+                t_s: Some(1.0),
+                channels: vec![channel_summary(1, -6.0), channel_summary(2, -6.0)].into(),
+            }),
+            Record::Clip(record::Clip {
+                time: at(125),
+                t_s: Some(3.5),
+                channel: 2,
+                clip: ClipKind::FlatTop,
+                level_dbfs: Some(-0.5),
+                samples: 120,
+                end_s: Some(3.75),
+                runs: 4,
+            }),
+            Record::Onset(record::Onset {
+                time: at(126),
+                t_s: Some(4.0),
+                channel: 1,
+                thd_pct: Some(1.0),
+                fundamental_dbfs: Some(-2.5),
+            }),
+            Record::Dropped(record::Dropped {
+                time: at(127),
+                t_s: Some(5.0),
+                frames: 256,
+            }),
+            Record::InputLost(record::InputLost {
+                time: at(128),
+                t_s: Some(6.0),
+                reason: "device unplugged".into(),
+            }),
+            Record::WriteGap(record::WriteGap {
+                time: at(130),
+                lost_records: 1,
+                since: at(129),
+            }),
+            Record::InputRestored(record::InputRestored {
+                time: at(130),
+                t_s: Some(7.0),
+            }),
+            Record::Stop(record::Stop {
+                time: at(131),
+                t_s: Some(8.0),
+                totals: LogTotals {
+                    summaries: 1,
+                    clip_events: 1,
+                    dropped_frames: 256,
+                    xruns: 3,
+                    input_losses: 1,
+                    lost_records: 1,
+                    ..LogTotals::default()
+                },
+            }),
+        ];
+        let text = out.text();
+        let read: Vec<Record<'static>> = text
+            .lines()
+            .map(|l| ndjson::read(l).unwrap_or_else(|e| panic!("{e}: {l}")))
+            .collect();
+        assert_eq!(read, expected);
+
+        // And the follow reader's own decoding of those lines.
+        let lines: Vec<&str> = text.lines().collect();
+        let m = parse_start(&format!("{}\n", lines[0])).expect("start");
+        assert_eq!(m.host, "alsa");
+        assert_eq!(m.device, "hw:CARD=PCH,DEV=0");
+        assert_eq!(m.sample_rate_hz, 48_000);
+        assert_eq!(m.channels, vec![1, 2]);
+        let updates: Vec<usize> = lines.iter().map(|l| from_log_line(l).len()).collect();
+        // start, 2 channels × (levels, tone), clip, onset, gap, lost, write-gap, restored, ended.
+        assert_eq!(updates, [0, 4, 1, 1, 1, 1, 0, 1, 1]);
+    }
+
+    #[test]
+    fn a_first_line_that_is_not_a_brink_log_1_start_is_refused_with_its_reason() {
+        let not_start = "not a brink-log-1 log: its first line is not a start record";
+        let summary = r#"{"kind":"summary","time":"x","t_s":1.0,"channels":[]}"#;
+        assert_eq!(parse_start(summary).unwrap_err(), not_start);
+        let other = r#"{"kind":"start","format":"brink-log-2","channels":[1]}"#;
+        assert_eq!(parse_start(other).unwrap_err(), not_start);
+        let unknown = r#"{"kind":"hello","time":"x"}"#;
+        assert_eq!(parse_start(unknown).unwrap_err(), not_start);
+        let no_channels = r#"{"kind":"start","format":"brink-log-1","host":"alsa"}"#;
+        assert_eq!(
+            parse_start(no_channels).unwrap_err(),
+            "the start record lists no channels"
+        );
+        for line in ["hello", r#"{"time":"x"}"#] {
+            let e = parse_start(line).unwrap_err();
+            assert!(e.starts_with("not a brink log (first line: "), "{e}");
+        }
     }
 }
