@@ -4,29 +4,22 @@
 //! test. The allocator counts an allocation (or a free or a reallocation) only on a thread whose
 //! flag is set, and only while it is set; the flag is set around the exact functions the data
 //! callback runs ([`callback_body_f32`], [`callback_body_i16`], [`callback_body`]) and, for a
-//! whole stream, around each data-callback call made by a synthetic cpal device.
+//! whole stream, around each data-callback call made by a synthetic cpal device
+//! (`brink::live::capture::synthetic`, through its `Script::around_callback` hook).
 
-// A `GlobalAlloc` impl is unsafe by nature; this one only forwards to `System` and counts. The
-// synthetic device also needs cpal's unsafe `Data::from_parts` (cpal's only way for a host to hand
-// a buffer to a callback).
+// A `GlobalAlloc` impl is unsafe by nature; this one only forwards to `System` and counts.
 #![allow(unsafe_code)]
 
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell;
-use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
-use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
+use brink::live::capture::synthetic::{Script, SynthDevice};
 use brink::live::capture::{callback_body, callback_body_f32, callback_body_i16, open_input};
 use brink::live::ring::{ring, Read};
-use cpal::traits::{DeviceTrait, StreamTrait};
-use cpal::{
-    Data, DeviceDescription, DeviceDescriptionBuilder, DeviceId, Error, ErrorKind, FrameCount,
-    HostId, InputCallbackInfo, InputStreamTimestamp, OutputCallbackInfo, SampleFormat,
-    StreamConfig, StreamInstant, SupportedBufferSize, SupportedStreamConfig,
-    SupportedStreamConfigRange, I24,
-};
+use cpal::{SampleFormat, I24};
 
 struct Counting;
 
@@ -164,210 +157,23 @@ fn integer_callback_bodies_never_allocate_even_with_the_ring_full() {
     );
 }
 
-/// A synthetic cpal device (cpal's `custom` host) whose stream thread calls the data callback
-/// with counting switched on around each call, and nowhere else.
-#[derive(Clone)]
-struct CountingDevice {
-    format: SampleFormat,
-    channels: u16,
-    period: usize,
-    callbacks: u64,
-    stats: Arc<Stats>,
-}
-
-#[derive(Default)]
-struct Stats {
-    done: AtomicU64,
-    allocations: AtomicU64,
-}
-
-impl PartialEq for CountingDevice {
-    fn eq(&self, other: &Self) -> bool {
-        Arc::ptr_eq(&self.stats, &other.stats)
-    }
-}
-
-impl Eq for CountingDevice {}
-
-impl std::hash::Hash for CountingDevice {
-    fn hash<H: std::hash::Hasher>(&self, state: &mut H) {
-        Arc::as_ptr(&self.stats).hash(state);
-    }
-}
-
-impl std::fmt::Debug for CountingDevice {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("CountingDevice")
-    }
-}
-
-impl std::fmt::Display for CountingDevice {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Counting")
-    }
-}
-
-struct CountingStream {
-    playing: Arc<AtomicBool>,
-    exit: Arc<AtomicBool>,
-    start: Instant,
-    handle: Option<JoinHandle<()>>,
-}
-
-impl Drop for CountingStream {
-    fn drop(&mut self) {
-        self.exit.store(true, Ordering::Release);
-        if let Some(h) = self.handle.take() {
-            let _ = h.join();
-        }
-    }
-}
-
-impl StreamTrait for CountingStream {
-    fn play(&self) -> Result<(), Error> {
-        self.playing.store(true, Ordering::Release);
-        Ok(())
-    }
-
-    fn pause(&self) -> Result<(), Error> {
-        self.playing.store(false, Ordering::Release);
-        Ok(())
-    }
-
-    fn now(&self) -> StreamInstant {
-        let e = self.start.elapsed();
-        StreamInstant::new(e.as_secs(), e.subsec_nanos())
-    }
-
-    fn buffer_size(&self) -> Result<FrameCount, Error> {
-        Ok(256)
-    }
-}
-
-impl CountingDevice {
-    fn range(&self) -> SupportedStreamConfigRange {
-        SupportedStreamConfigRange::new(
-            self.channels,
-            48_000,
-            48_000,
-            SupportedBufferSize::Unknown,
-            self.format,
-        )
-    }
-}
-
-impl DeviceTrait for CountingDevice {
-    type SupportedInputConfigs = std::vec::IntoIter<SupportedStreamConfigRange>;
-    type SupportedOutputConfigs = std::vec::IntoIter<SupportedStreamConfigRange>;
-    type Stream = CountingStream;
-
-    fn description(&self) -> Result<DeviceDescription, Error> {
-        Ok(DeviceDescriptionBuilder::new("Counting").build())
-    }
-
-    fn id(&self) -> Result<DeviceId, Error> {
-        Ok(DeviceId::new(HostId::Custom, "counting"))
-    }
-
-    fn supported_input_configs(&self) -> Result<Self::SupportedInputConfigs, Error> {
-        Ok(vec![self.range()].into_iter())
-    }
-
-    fn supported_output_configs(&self) -> Result<Self::SupportedOutputConfigs, Error> {
-        Ok(Vec::new().into_iter())
-    }
-
-    fn default_input_config(&self) -> Result<SupportedStreamConfig, Error> {
-        Ok(self.range().with_max_sample_rate())
-    }
-
-    fn default_output_config(&self) -> Result<SupportedStreamConfig, Error> {
-        Err(ErrorKind::UnsupportedOperation.into())
-    }
-
-    fn build_input_stream_raw<D, E>(
-        &self,
-        config: StreamConfig,
-        sample_format: SampleFormat,
-        mut data_callback: D,
-        _error_callback: E,
-        _timeout: Option<Duration>,
-    ) -> Result<CountingStream, Error>
-    where
-        D: FnMut(&Data, &InputCallbackInfo) + Send + 'static,
-        E: FnMut(Error) + Send + 'static,
-    {
-        if sample_format != self.format || config.channels != self.channels {
-            return Err(ErrorKind::UnsupportedConfig.into());
-        }
-        let playing = Arc::new(AtomicBool::new(false));
-        let exit = Arc::new(AtomicBool::new(false));
-        let start = Instant::now();
-        let (p, x, me) = (Arc::clone(&playing), Arc::clone(&exit), self.clone());
-        let handle = std::thread::spawn(move || {
-            let n = me.period * usize::from(me.channels);
-            let f32s: Vec<f32> = (0..n).map(|i| (i % 200) as f32 / 100.0 - 1.0).collect();
-            let i16s: Vec<i16> = (0..n).map(|i| (i as i16).wrapping_mul(331)).collect();
-            let (ptr, format) = match me.format {
-                SampleFormat::I16 => (i16s.as_ptr() as *mut (), SampleFormat::I16),
-                _ => (f32s.as_ptr() as *mut (), SampleFormat::F32),
-            };
-            // SAFETY: `ptr` points at `n` samples of `format`, in a vector that outlives `data`
-            // and is never written while it exists; input callbacks only read through `&Data`.
-            let data = unsafe { Data::from_parts(ptr, n, format) };
-            let at = StreamInstant::new(0, 0);
-            let info = InputCallbackInfo::new(InputStreamTimestamp {
-                callback: at,
-                capture: at,
-            });
-            let mut k = 0;
-            while !x.load(Ordering::Acquire) {
-                if k >= me.callbacks || !p.load(Ordering::Acquire) {
-                    std::thread::sleep(Duration::from_millis(1));
-                    continue;
-                }
-                let ((), allocs) = counted(|| data_callback(&data, &info));
-                me.stats.allocations.fetch_add(allocs, Ordering::Relaxed);
-                k += 1;
-                me.stats.done.store(k, Ordering::Release);
-                std::thread::sleep(Duration::from_micros(200));
-            }
-        });
-        Ok(CountingStream {
-            playing,
-            exit,
-            start,
-            handle: Some(handle),
-        })
-    }
-
-    fn build_output_stream_raw<D, E>(
-        &self,
-        _: StreamConfig,
-        _: SampleFormat,
-        _: D,
-        _: E,
-        _: Option<Duration>,
-    ) -> Result<CountingStream, Error>
-    where
-        D: FnMut(&mut Data, &OutputCallbackInfo) + Send + 'static,
-        E: FnMut(Error) + Send + 'static,
-    {
-        Err(ErrorKind::UnsupportedOperation.into())
-    }
-}
-
 fn run_stream(format: SampleFormat, expect: &str) {
     let callbacks = 200;
-    let stats = Arc::new(Stats::default());
-    let dev = CountingDevice {
-        format,
-        channels: 2,
-        period: 480,
-        callbacks,
-        stats: Arc::clone(&stats),
-    };
-    let device = cpal::Device::from(cpal::platform::CustomDevice::from_device(dev));
+    // The synthetic stream's thread calls the data callback with counting switched on around
+    // each call, and nowhere else.
+    let allocations = Arc::new(AtomicU64::new(0));
+    let wrapped = Arc::new(AtomicU64::new(0));
+    let (tally, calls) = (Arc::clone(&allocations), Arc::clone(&wrapped));
+    let script = Script::new(480, Some(callbacks), Duration::from_micros(200)).around_callback(
+        move |call| {
+            let ((), n) = counted(call);
+            tally.fetch_add(n, Ordering::Relaxed);
+            calls.fetch_add(1, Ordering::Relaxed);
+        },
+    );
+    let dev = SynthDevice::input("Counting", 2, (48_000, 48_000), &[format], script);
+    let script = Arc::clone(&dev.script);
+    let device = dev.into_cpal();
     // A ring of 8 callbacks and a reader that drains it only now and then: callbacks meet a full
     // ring as well as an empty one.
     let (w, mut r) = ring(2, 480 * 8);
@@ -377,12 +183,12 @@ fn run_stream(format: SampleFormat, expect: &str) {
     cap.play().expect("play");
     let mut out = vec![0.0f32; 2 * 480];
     let start = Instant::now();
-    while stats.done.load(Ordering::Acquire) < callbacks {
+    while script.done() < callbacks {
         assert!(start.elapsed() < Duration::from_secs(30), "stream stalled");
         std::thread::sleep(Duration::from_millis(5));
         // Not a frame is read until 20 callbacks have come (the ring holds 8), then the reader
         // drains what is there every 5 ms.
-        if stats.done.load(Ordering::Acquire) >= 20 {
+        if script.done() >= 20 {
             while let Read::Frames(_) | Read::Gap { .. } = r.read_block(&mut out) {}
         }
     }
@@ -394,7 +200,9 @@ fn run_stream(format: SampleFormat, expect: &str) {
         c.dropped.load(Ordering::Relaxed) > 0,
         "the full-ring path ran"
     );
-    assert_eq!(stats.allocations.load(Ordering::Relaxed), 0);
+    // Every callback ran inside the counting wrapper.
+    assert_eq!(wrapped.load(Ordering::Relaxed), callbacks);
+    assert_eq!(allocations.load(Ordering::Relaxed), 0);
 }
 
 #[test]
