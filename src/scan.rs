@@ -88,11 +88,7 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
                     frames += n as u64;
                     // Split into channel planes once, here, so the analysers read contiguous data.
                     let mut planes = pool.spare_planes();
-                    planes.resize_with(n_ch, Vec::new);
-                    for (c, plane) in planes.iter_mut().enumerate() {
-                        plane.clear();
-                        plane.extend(inter.chunks_exact(n_ch).map(|frame| frame[c]));
-                    }
+                    split_planes(&inter, n_ch, &mut planes);
                     pool.push(planes, 0, &mut tone);
                 }
                 Err(e) => {
@@ -141,6 +137,28 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
         channels,
         timeline,
     })
+}
+
+/// Split interleaved frames into one plane per channel. The frames are taken in tiles small
+/// enough to stay in the first-level cache while every channel's samples are picked out of
+/// them, so many channels cost one pass over memory rather than one each.
+fn split_planes(inter: &[f32], channels: usize, planes: &mut Planes) {
+    const TILE: usize = 256;
+    let frames = inter.len() / channels.max(1);
+    planes.resize_with(channels, Vec::new);
+    for plane in planes.iter_mut() {
+        plane.clear();
+        plane.reserve(frames);
+    }
+    if channels == 1 {
+        planes[0].extend_from_slice(&inter[..frames]);
+        return;
+    }
+    for tile in inter[..frames * channels].chunks(TILE * channels) {
+        for (c, plane) in planes.iter_mut().enumerate() {
+            plane.extend(tile.chunks_exact(channels).map(|frame| frame[c]));
+        }
+    }
 }
 
 /// One channel's samples (`channel` from 1) over the frames `range` of a WAV file, full scale

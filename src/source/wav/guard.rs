@@ -25,7 +25,7 @@ pub(super) struct FmtFields {
     pub(super) sample_rate: u32,
     pub(super) block_align: u16,
     /// Bits per sample as stored.
-    container_bits: u16,
+    pub(super) container_bits: u16,
     /// Valid bits (= container bits except for extensible integer PCM).
     pub(super) valid_bits: u16,
     pub(super) float: bool,

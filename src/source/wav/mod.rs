@@ -29,7 +29,7 @@ mod guard;
 #[cfg(test)]
 mod testfiles;
 
-use decode::decode_packet;
+use decode::{decode_packet, Direct};
 use error::sym_message;
 pub use error::WavError;
 use guard::{guard, present, PatchedFile};
@@ -87,6 +87,8 @@ pub struct WavSource {
     sym_channels: usize,
     /// Samples per symphonia packet at most.
     max_packet_samples: usize,
+    /// Converted from the packets' bytes directly, when the layout allows.
+    direct: Option<Direct>,
     /// Decoded samples not yet handed out (may end in a partial frame when `sym_channels` is 1).
     pending: Vec<f32>,
     pending_pos: usize,
@@ -191,9 +193,11 @@ impl WavSource {
             frames,
             encoding: fmt.encoding,
         };
+        let direct = Direct::for_format(fmt.container_bits, fmt.valid_bits, fmt.float);
         Ok(WavSource {
             reader,
             decoder,
+            direct,
             info,
             sym_channels,
             max_packet_samples,
@@ -254,7 +258,7 @@ impl WavSource {
                 && self.sym_channels == ch
                 && want - out.len() >= self.max_packet_samples;
             let target = if direct { &mut *out } else { &mut self.pending };
-            match decode_packet(&mut self.reader, &mut self.decoder, target) {
+            match decode_packet(&mut self.reader, &mut self.decoder, self.direct, target) {
                 Ok(Some(n)) => self.decoded += n as u64,
                 Ok(None) => {
                     self.state = State::Ended;
