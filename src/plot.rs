@@ -744,7 +744,13 @@ pub fn sweep_svg(report: &SweepReport, path: &Path) -> Result<(), PlotError> {
 /// What `compare` draws: two fingerprints or two sweeps, each with its label.
 pub enum Pair<'a> {
     /// Harmonic bars of A beside B per order.
-    Fingerprints([(&'a str, &'a DistortionReport); 2]),
+    Fingerprints {
+        /// A and B, each with its label.
+        sides: [(&'a str, &'a DistortionReport); 2],
+        /// Orders up to this one are always drawn (as the comparison's table shows them);
+        /// higher ones follow when measured.
+        min_top_order: usize,
+    },
     /// THD curves of two sweeps of one kind.
     Sweeps([(&'a str, &'a SweepReport); 2]),
 }
@@ -752,7 +758,10 @@ pub enum Pair<'a> {
 /// The comparison figure, as SVG text.
 pub fn compare_svg_string(pair: &Pair) -> Result<String, PlotError> {
     match pair {
-        Pair::Fingerprints(sides) => bars_svg(sides),
+        Pair::Fingerprints {
+            sides,
+            min_top_order,
+        } => bars_svg(sides, *min_top_order),
         Pair::Sweeps(sides) => sweeps_svg(sides),
     }
 }
@@ -764,13 +773,16 @@ pub fn compare_svg(pair: &Pair, path: &Path) -> Result<(), PlotError> {
     write_svg(path, &compare_svg_string(pair)?)
 }
 
-fn bars_svg(sides: &[(&str, &DistortionReport); 2]) -> Result<String, PlotError> {
+fn bars_svg(
+    sides: &[(&str, &DistortionReport); 2],
+    min_top_order: usize,
+) -> Result<String, PlotError> {
     let top_order = sides
         .iter()
         .flat_map(|(_, d)| d.harmonics.iter().map(|h| h.order))
         .max()
         .unwrap_or(0)
-        .max(crate::compare::MIN_TABLE_ORDER);
+        .max(min_top_order);
     let level = |d: &DistortionReport, n: usize| {
         d.harmonics
             .iter()
@@ -1499,10 +1511,10 @@ mod tests {
     fn bars_name_every_order_and_tell_odd_from_even() {
         let a = distortion(&[(2, -90.0), (3, -20.0), (4, -95.0), (5, -30.0)]);
         let b = distortion(&[(2, -25.0), (3, -40.0), (4, -50.0), (5, -60.0)]);
-        let svg = compare_svg_string(&Pair::Fingerprints([
-            ("a.wav ch 1", &a),
-            ("b.wav ch 1", &b),
-        ]))
+        let svg = compare_svg_string(&Pair::Fingerprints {
+            sides: [("a.wav ch 1", &a), ("b.wav ch 1", &b)],
+            min_top_order: 10,
+        })
         .expect("draws");
         legible(&svg);
         let t = texts(&svg);

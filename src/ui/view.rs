@@ -1090,7 +1090,7 @@ mod tests {
     /// dashboard (what the screen thread would have been fed).
     fn recorded_stage_box(secs: f64) -> Dashboard {
         let (rate, channels, samples) =
-            crate::watch::render_scene("stage-box-soundcheck.wav").expect("scene");
+            crate::gen::demo::render_scene("stage-box-soundcheck.wav").expect("scene");
         let settings = EngineSettings {
             summary_every_s: None,
             meter_every_s: Some(1.0 / 30.0),
