@@ -43,6 +43,9 @@ pub const THD_ALIKE_DB: f64 = 1.0;
 
 /// Fall-off slopes closer than this (dB per octave of order) read as alike. Ours: a third of
 /// the 9 dB/octave band between [`SLOW_FALLOFF`] and [`FAST_FALLOFF`] in the character line.
+///
+/// [`SLOW_FALLOFF`]: crate::analysis::character::SLOW_FALLOFF
+/// [`FAST_FALLOFF`]: crate::analysis::character::FAST_FALLOFF
 pub const FALLOFF_ALIKE_DB: f64 = 3.0;
 
 /// Two onsets closer than this (dB of drive) read as "about the same drive". Ours: the accuracy
