@@ -48,7 +48,7 @@ use serde::Deserialize;
 use toml::Spanned;
 
 use crate::dsp::ballistics::Ballistics;
-use crate::gen::{parse_duration, GenError};
+use crate::parse::{parse_duration, ParseError};
 
 /// Shortest `every` and `tone_span` accepted: below this a slice holds a handful of samples.
 const MIN_SPAN: Duration = Duration::from_millis(1);
@@ -665,7 +665,7 @@ impl Checker<'_> {
         let quoted = format!("{text:?}");
         let d = parse_duration(&text).map_err(|e| {
             let why = match e {
-                GenError::BadDuration { reason, .. } => reason.to_string(),
+                ParseError::Duration { reason, .. } => reason.to_string(),
                 other => other.to_string(),
             };
             self.bad_at(
@@ -800,20 +800,6 @@ mod tests {
         assert_eq!(f.snapshot_dir, w.snapshot_dir, "snapshot_dir");
         // And nothing the field list above forgot.
         assert_eq!(file, want);
-    }
-
-    #[test]
-    fn builtin_defaults_match_the_scan_command_line() {
-        use clap::Parser;
-        // With no options and no files, a scan runs on exactly the engine's own defaults.
-        let cli = crate::cli::Cli::try_parse_from(["brink", "scan", "a.wav"]).unwrap();
-        let crate::cli::Command::Scan(a) = cli.command else {
-            panic!("not scan");
-        };
-        assert_eq!(a.as_config(), ConfigFile::default());
-        let plan = crate::cli::plan_from(&builtin_defaults()).unwrap();
-        assert_eq!(plan.settings, crate::scan::ScanSettings::default());
-        assert!(!plan.json);
     }
 
     #[test]

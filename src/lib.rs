@@ -3,24 +3,24 @@
 //! The data's path: [`source`] (where samples come from) → [`dsp`] (pure numerics) →
 //! [`analysis`] (per-channel state and reports) → [`sink`] (text, JSON). [`scan`] drives the path
 //! for files; [`live`] runs it on a live input; [`ui`] draws it on a terminal; [`gen`] makes test
-//! signals. The binary only calls [`run`].
+//! signals. [`cmd`] holds the command line, one module per command; [`parse`] the value
+//! parsers it shares with [`config`]. The binary only calls [`run`].
 #![warn(missing_docs)]
 
 pub mod analysis;
-pub mod cli;
+pub mod cmd;
 pub mod compare;
 pub mod config;
 pub mod dsp;
 pub mod gen;
 pub mod live;
-pub mod logcmd;
+pub mod parse;
 pub mod plot;
 pub mod scan;
 pub mod sink;
 pub mod source;
 pub mod sweep;
 pub mod ui;
-pub mod watch;
 
 use std::ffi::OsString;
 use std::io::{self, BufWriter, Write};
@@ -28,7 +28,7 @@ use std::process::ExitCode;
 
 use clap::Parser;
 
-use cli::{Cli, Command, ScanArgs};
+use cmd::{Cli, Command};
 
 /// Exit status: every file was measured (clipping found or not).
 pub const EXIT_OK: u8 = 0;
@@ -54,33 +54,33 @@ where
     let mut out = BufWriter::new(stdout.lock());
     let mut err = io::stderr();
     let code = match cli.command {
-        Command::Scan(args) => run_scan(&args, &mut out, &mut err),
+        Command::Scan(args) => cmd::scan::run(&args, &mut out, &mut err),
         Command::Log(args) => {
             // Records go straight to their target, each flushed as written.
             drop(out);
-            return ExitCode::from(logcmd::run_log(&args, &mut err));
+            return ExitCode::from(cmd::log::run(&args, &mut err));
         }
         Command::Watch(args) => {
             drop(out);
-            return ExitCode::from(watch::run_watch(&args, &mut err));
+            return ExitCode::from(cmd::watch::run(&args, &mut err));
         }
         Command::Demo(args) => {
             if args.list {
-                watch::run_demo(&args, &mut out, &mut err)
+                cmd::demo::run(&args, &mut out, &mut err)
             } else {
                 drop(out);
-                return ExitCode::from(watch::run_demo(&args, &mut io::stdout(), &mut err));
+                return ExitCode::from(cmd::demo::run(&args, &mut io::stdout(), &mut err));
             }
         }
         Command::Sweep(args) => {
             // Steps are printed as they are measured.
             drop(out);
             let stdout = io::stdout();
-            return ExitCode::from(sweep::run_sweep(&args, &mut stdout.lock(), &mut err));
+            return ExitCode::from(cmd::sweep::run(&args, &mut stdout.lock(), &mut err));
         }
-        Command::Devices(args) => run_devices(&args, &mut out, &mut err),
-        Command::Compare(args) => compare::run(&args, &mut out, &mut err),
-        Command::Gen(args) => match gen::run(&args, &mut out) {
+        Command::Devices(args) => cmd::devices::run(&args, &mut out, &mut err),
+        Command::Compare(args) => cmd::compare::run(&args, &mut out, &mut err),
+        Command::Gen(args) => match cmd::gen::run(&args, &mut out) {
             Ok(()) => EXIT_OK,
             Err(e) => {
                 let _ = writeln!(err, "brink gen: {e}");
@@ -95,90 +95,4 @@ where
         }
         _ => ExitCode::from(code),
     }
-}
-
-/// `brink devices`: every host (or one) with its devices, as a table or JSON.
-pub fn run_devices<W: Write, E: Write>(args: &cli::DevicesArgs, out: &mut W, err: &mut E) -> u8 {
-    let hosts = match &args.host {
-        Some(name) => match live::devices::find_host(Some(name)) {
-            Ok(h) => vec![live::devices::report_host(&h, false)],
-            Err(e) => {
-                let _ = writeln!(err, "brink devices: {e}");
-                return EXIT_USAGE;
-            }
-        },
-        None => live::devices::list(),
-    };
-    let written = if args.json {
-        sink::json::write_line(out, &hosts)
-    } else {
-        live::devices::write_table(&mut *out, &hosts)
-    };
-    match written {
-        Ok(()) => EXIT_OK,
-        Err(e) if e.kind() == io::ErrorKind::BrokenPipe => EXIT_OK,
-        Err(e) => {
-            let _ = writeln!(err, "brink devices: cannot write output: {e}");
-            EXIT_FILE_ERROR
-        }
-    }
-}
-
-/// `brink scan`: each file is measured and reported on its own; a bad file is reported on
-/// `err` and the rest go on.
-pub fn run_scan<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 {
-    let plan = match args.plan() {
-        Ok(p) => p,
-        Err(msg) => {
-            let _ = writeln!(err, "brink scan: {msg}");
-            return EXIT_USAGE;
-        }
-    };
-    let settings = plan.settings;
-    // `--svg`: one figure per input, named after it when there are several.
-    let svg = args.svg.as_deref();
-    let figures = match svg.map(|s| plot::per_file_paths(s, &args.files)) {
-        Some(Err(msg)) => {
-            let _ = writeln!(err, "brink scan: {msg}");
-            return EXIT_USAGE;
-        }
-        Some(Ok(paths)) => paths,
-        None => Vec::new(),
-    };
-    let mut code = EXIT_OK;
-    for (i, path) in args.files.iter().enumerate() {
-        let written = match scan::scan_file(path, &settings) {
-            Ok(report) => {
-                let r = if plan.json {
-                    sink::json::write_line(out, &report)
-                } else {
-                    sink::text::write_scan(out, &report)
-                };
-                if let Some(fig) = figures.get(i) {
-                    let channel = args.channel.map(usize::from);
-                    let span = settings.tone_span_s;
-                    if let Err(e) = plot::scan_spectrum_svg(path, &report, channel, span, fig) {
-                        let _ = writeln!(err, "brink scan: {}: {e}", path.display());
-                        code = EXIT_FILE_ERROR;
-                    }
-                }
-                r.and_then(|()| out.flush())
-            }
-            Err(e) => {
-                let _ = writeln!(err, "brink scan: {}: {e}", path.display());
-                code = EXIT_FILE_ERROR;
-                Ok(())
-            }
-        };
-        match written {
-            Ok(()) => {}
-            // The reader went away (`| head`): stop quietly.
-            Err(e) if e.kind() == io::ErrorKind::BrokenPipe => return code,
-            Err(e) => {
-                let _ = writeln!(err, "brink scan: cannot write output: {e}");
-                return EXIT_FILE_ERROR;
-            }
-        }
-    }
-    code
 }

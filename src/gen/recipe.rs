@@ -9,7 +9,7 @@
 //! sweep  := number | number ".." number | number ".." number "/" STEPS
 //! ```
 //!
-//! See [`crate::gen::RECIPE_HELP`] for what each kind and key means.
+//! `brink gen --help` says what each kind and key means.
 
 use std::fmt;
 use std::str::FromStr;
@@ -325,7 +325,7 @@ impl Shape {
     }
 }
 
-/// Keys every kind shares (some kinds refuse some of them, see [`crate::gen::RECIPE_HELP`]).
+/// Keys every kind shares (some kinds refuse some of them, see `brink gen --help`).
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Common {
     /// `noise=DB`: Gaussian noise added after shaping, AES17 RMS dBFS.

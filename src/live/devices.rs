@@ -475,57 +475,6 @@ impl Named {
     }
 }
 
-/// Parse a channel list such as `1-8,12` against an input of `available` channels: channel
-/// numbers as people write them (from 1), ascending, each once. Subtract 1 to index a frame.
-pub fn parse_channels(spec: &str, available: usize) -> Result<Vec<usize>, CaptureError> {
-    let fail = |reason: String| CaptureError::Channels {
-        spec: spec.to_owned(),
-        reason,
-    };
-    if available == 0 {
-        return Err(fail("the input has no channels".into()));
-    }
-    if spec.trim().is_empty() {
-        return Err(fail("it is empty; write e.g. 1-8,12".into()));
-    }
-    let number = |s: &str| -> Result<usize, CaptureError> {
-        let s = s.trim();
-        let n: usize = s
-            .parse()
-            .map_err(|_| fail(format!("'{s}' is not a channel number")))?;
-        if n == 0 {
-            return Err(fail("channels are numbered from 1".into()));
-        }
-        if n > available {
-            let s = if available == 1 { "" } else { "s" };
-            return Err(fail(format!(
-                "channel {n} is beyond the input's {available} channel{s}"
-            )));
-        }
-        Ok(n)
-    };
-    let mut out = Vec::new();
-    for item in spec.split(',') {
-        let item = item.trim();
-        if item.is_empty() {
-            return Err(fail("an item is empty (two commas in a row?)".into()));
-        }
-        match item.split_once('-') {
-            Some((a, b)) => {
-                let (lo, hi) = (number(a)?, number(b)?);
-                if lo > hi {
-                    return Err(fail(format!("range {lo}-{hi} runs backwards")));
-                }
-                out.extend(lo..=hi);
-            }
-            None => out.push(number(item)?),
-        }
-    }
-    out.sort_unstable();
-    out.dedup();
-    Ok(out)
-}
-
 #[cfg(test)]
 mod tests {
     use std::time::Duration;
@@ -814,60 +763,5 @@ mod tests {
         );
         let mut out = Vec::new();
         write_table(&mut out, &hosts).expect("write");
-    }
-
-    #[test]
-    fn channel_lists_are_sorted_unique_and_bounded() {
-        assert_eq!(
-            parse_channels("1-8,12", 16),
-            Ok((1..=8).chain([12]).collect())
-        );
-        assert_eq!(parse_channels(" 3, 1 ,2-3,1", 4), Ok(vec![1, 2, 3]));
-        assert_eq!(parse_channels("2", 2), Ok(vec![2]));
-        let err = |s, n| parse_channels(s, n).map_err(|e| e.to_string());
-        assert_eq!(
-            err("1-9", 8),
-            Err("channel list '1-9': channel 9 is beyond the input's 8 channels".into())
-        );
-        assert_eq!(
-            err("2", 1),
-            Err("channel list '2': channel 2 is beyond the input's 1 channel".into())
-        );
-        assert_eq!(
-            err("0-2", 8),
-            Err("channel list '0-2': channels are numbered from 1".into())
-        );
-        assert_eq!(
-            err("5-2", 8),
-            Err("channel list '5-2': range 5-2 runs backwards".into())
-        );
-        assert_eq!(
-            err("1,,2", 8),
-            Err("channel list '1,,2': an item is empty (two commas in a row?)".into())
-        );
-        assert_eq!(
-            err("left", 8),
-            Err("channel list 'left': 'left' is not a channel number".into())
-        );
-        assert_eq!(
-            err("1-", 8),
-            Err("channel list '1-': '' is not a channel number".into())
-        );
-        assert_eq!(
-            err("-3", 8),
-            Err("channel list '-3': '' is not a channel number".into())
-        );
-        assert_eq!(
-            err("", 8),
-            Err("channel list '': it is empty; write e.g. 1-8,12".into())
-        );
-        assert_eq!(
-            err("1", 0),
-            Err("channel list '1': the input has no channels".into())
-        );
-        assert_eq!(
-            err("1-99999999999999999999", 8),
-            Err("channel list '1-99999999999999999999': '99999999999999999999' is not a channel number".into())
-        );
     }
 }

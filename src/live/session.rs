@@ -11,11 +11,12 @@ use std::time::{Duration, Instant};
 use crossbeam_channel::{Receiver, Sender};
 
 use super::capture::{open_input, probe_input, Capture, CaptureFault};
-use super::devices::{find_host, find_input, parse_channels};
+use super::devices::{find_host, find_input};
 use super::engine::{Engine, EngineSettings, LiveEvent};
 use super::ring::{ring, AnalysisReader, CaptureWriter, Counters};
 use super::run::{spawn_analysis, spawn_analysis_with, Analysis, Feed, Published, Totals};
 use super::source::{FileSource, MemorySource, Pace};
+use crate::parse::parse_channels;
 use crate::source::wav::WavError;
 
 /// How long callbacks may stop arriving before the input counts as lost.

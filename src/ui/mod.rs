@@ -4,6 +4,7 @@
 
 pub mod feed;
 pub mod model;
+pub mod terminal;
 pub mod view;
 
 use std::io;

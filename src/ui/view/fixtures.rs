@@ -31,7 +31,7 @@ pub(super) fn meta(channels: Vec<usize>, device: &str) -> SourceMeta {
 /// dashboard (what the screen thread would have been fed).
 pub(super) fn recorded_stage_box(secs: f64) -> Dashboard {
     let (rate, channels, samples) =
-        crate::watch::render_scene("stage-box-soundcheck.wav").expect("scene");
+        crate::gen::demo::render_scene("stage-box-soundcheck.wav").expect("scene");
     let settings = EngineSettings {
         summary_every_s: None,
         meter_every_s: Some(1.0 / 30.0),

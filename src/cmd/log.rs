@@ -1,4 +1,5 @@
-//! `brink log`: headless measurement for hours, over SSH if need be. Summaries every interval,
+//! `brink log`: its arguments and the run wiring source, ring, analysis and log writer, for
+//! headless measurement for hours, over SSH if need be. Summaries every interval,
 //! clip episodes and onsets as they happen, NDJSON (default) or CSV, to stdout or a rotating file.
 //! SIGINT and SIGTERM end the run with a stop record; SIGHUP is ignored so a dropped SSH session
 //! does not end a recording.
@@ -11,12 +12,12 @@ use std::time::{Duration, SystemTime};
 
 use clap::Args;
 
-use crate::cli::plan_from;
-use crate::config;
+use super::common::{configured, plan_from};
 use crate::live::engine::EngineSettings;
 use crate::live::run::Totals;
 use crate::live::session::{Notice, Session, SourceSpec, Step};
 use crate::live::source::Pace;
+use crate::parse::{parse_duration, parse_size};
 use crate::sink::log::{LogFormat, LogMeta, LogWriter, Rotation, Target};
 
 /// Exit status when measurement completed but some log lines could not be written.
@@ -51,7 +52,7 @@ pub struct LogArgs {
     #[arg(long)]
     pub fast: bool,
     /// Interval of summary records (e.g. 250ms, 1s).
-    #[arg(long, default_value = "1s", value_parser = crate::gen::parse_duration)]
+    #[arg(long, default_value = "1s", value_parser = parse_duration)]
     pub every: Duration,
     /// Write to this file instead of standard output.
     #[arg(long, value_name = "FILE")]
@@ -73,28 +74,9 @@ pub struct LogArgs {
     pub config: Option<PathBuf>,
 }
 
-/// Parse a size with an optional k/M/G suffix (powers of 1024).
-pub fn parse_size(s: &str) -> Result<u64, String> {
-    let t = s.trim();
-    let (num, mult) = match t.chars().last() {
-        Some('k' | 'K') => (&t[..t.len() - 1], 1u64 << 10),
-        Some('m' | 'M') => (&t[..t.len() - 1], 1 << 20),
-        Some('g' | 'G') => (&t[..t.len() - 1], 1 << 30),
-        _ => (t, 1),
-    };
-    match num.parse::<u64>() {
-        Ok(n) if n > 0 => n
-            .checked_mul(mult)
-            .ok_or_else(|| format!("size '{s}' is too large")),
-        _ => Err(format!(
-            "bad size '{s}': use a whole number with an optional k, M or G, e.g. 10M"
-        )),
-    }
-}
-
 /// Run `brink log`; returns the exit status.
-pub fn run_log<E: Write>(args: &LogArgs, err: &mut E) -> u8 {
-    match run(args, err) {
+pub fn run<E: Write>(args: &LogArgs, err: &mut E) -> u8 {
+    match record(args, err) {
         Ok(code) => code,
         Err(msg) => {
             let _ = writeln!(err, "brink log: {msg}");
@@ -103,7 +85,7 @@ pub fn run_log<E: Write>(args: &LogArgs, err: &mut E) -> u8 {
     }
 }
 
-fn run<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
+fn record<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
     // Signals first, so a stop during set-up is not lost.
     let stop = Arc::new(AtomicBool::new(false));
     for sig in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
@@ -123,8 +105,7 @@ fn run<E: Write>(args: &LogArgs, err: &mut E) -> Result<u8, String> {
             args.onset
         ));
     }
-    let files = config::layered(args.config.as_deref()).map_err(|e| e.to_string())?;
-    let plan = plan_from(&config::builtin_defaults().merge(files))?;
+    let plan = plan_from(&configured(args.config.as_deref())?)?;
     let settings = EngineSettings {
         channel: plan.settings.channel,
         summary_every_s: Some(args.every.as_secs_f64()),

@@ -1,19 +1,15 @@
-//! Command-line arguments (raw values) and their validation into settings.
+//! `brink scan`: its arguments, what it measures (the help under `brink scan --help`), their
+//! layering over the configuration files, and the run over each file.
 
+use std::io::{self, Write};
 use std::path::PathBuf;
 
-use clap::{Args, Parser, Subcommand};
+use super::common::{configured, plan_from, ScanPlan};
+use crate::config::{ConfigFile, MeasureSection, ScanSection};
+use crate::parse::parse_duration;
 
-use crate::analysis::ChannelSettings;
-use crate::config::{self, ConfigFile, MeasureSection, ScanSection};
-use crate::dsp::clip::ClipSettings;
-use crate::dsp::tone::ToneSettings;
-use crate::scan::ScanSettings;
-
-/// Top-level help text shown under the usage line.
-const ABOUT: &str = "brink: measures clipping, true peak and harmonic distortion in audio.";
-
-const SCAN_AFTER_HELP: &str = "\
+/// What `brink scan` measures; shown under `brink scan --help`.
+pub const SCAN_AFTER_HELP: &str = "\
 Measurements (per channel):
   sample peak     highest |sample|, dBFS (full scale = 1)
   true peak       ITU-R BS.1770-4 Annex 2: x4 oversampling below 88.2 kHz, x2 up to 176.4 kHz,
@@ -40,58 +36,10 @@ Measurements (per channel):
                   alone when the even ones are 20 dB down (and the reverse); square wave -6.02
 Distortion is measured over --tone-span at the centre of the file; --every adds a time line.";
 
-/// brink command line.
-#[derive(Debug, Parser)]
-#[command(name = "brink", version, about = ABOUT, propagate_version = true)]
-pub struct Cli {
-    /// What to do.
-    #[command(subcommand)]
-    pub command: Command,
-}
-
-/// The modes of brink.
-#[derive(Debug, Subcommand)]
-pub enum Command {
-    /// Measure WAV files: levels, true peak, overs, flat tops and harmonic distortion.
-    #[command(after_help = SCAN_AFTER_HELP)]
-    Scan(ScanArgs),
-    /// Write test signals to a WAV file, one recipe per channel.
-    #[command(after_help = crate::gen::RECIPE_HELP)]
-    Gen(crate::gen::GenArgs),
-    /// Measure live, headless: summaries every interval and clip events as they happen,
-    /// as NDJSON or CSV lines (to standard output or a rotating file).
-    Log(crate::logcmd::LogArgs),
-    /// The terminal dashboard on a live input, a WAV file (--input file:PATH) or a log being
-    /// written (--follow FILE): meters, clip lamps, harmonic bars, odd/even balance.
-    Watch(crate::watch::WatchArgs),
-    /// The dashboard on the bundled demo tones, looping; no audio hardware needed.
-    Demo(crate::watch::DemoArgs),
-    /// Drive a stage under test from an output and measure its return: THD and harmonics
-    /// against drive (or frequency), the clipping onset and knee.
-    Sweep(crate::sweep::SweepArgs),
-    /// List the audio hosts and devices this machine offers.
-    Devices(DevicesArgs),
-    /// Compare two harmonic fingerprints (WAV captures, snapshots, scan reports) or two sweeps
-    /// side by side, with the differences in plain words.
-    #[command(after_help = crate::compare::COMPARE_AFTER_HELP)]
-    Compare(crate::compare::CompareArgs),
-}
-
-/// Arguments of `brink devices`.
-#[derive(Debug, Args)]
-pub struct DevicesArgs {
-    /// Only this host (e.g. alsa, jack).
-    #[arg(long)]
-    pub host: Option<String>,
-    /// Print JSON instead of a table.
-    #[arg(long)]
-    pub json: bool,
-}
-
 /// Arguments of `brink scan`. Options left out take their value from the configuration files
 /// (`--config FILE` over the user file `$XDG_CONFIG_HOME/brink/config.toml`), then from the
 /// built-in defaults shown here.
-#[derive(Debug, Args)]
+#[derive(Debug, clap::Args)]
 pub struct ScanArgs {
     /// WAV files to measure (16/24/32-bit integer or 32/64-bit float PCM).
     #[arg(required = true)]
@@ -106,7 +54,7 @@ pub struct ScanArgs {
     #[arg(long)]
     pub text: bool,
     /// Add a time line with levels and THD per slice of this length (e.g. 100ms, 1s).
-    #[arg(long, value_parser = crate::gen::parse_duration)]
+    #[arg(long, value_parser = parse_duration)]
     pub every: Option<std::time::Duration>,
     /// Measure this fundamental (Hz) instead of the strongest tone.
     #[arg(long)]
@@ -121,7 +69,7 @@ pub struct ScanArgs {
     #[arg(long, value_parser = clap::value_parser!(u16).range(2..=40))]
     pub max_order: Option<u16>,
     /// Length of the span at the centre of each file used for distortion [default: 4s].
-    #[arg(long, value_parser = crate::gen::parse_duration)]
+    #[arg(long, value_parser = parse_duration)]
     pub tone_span: Option<std::time::Duration>,
     /// Shortest run of full-scale samples counted as an over [default: 3].
     #[arg(long, value_parser = clap::value_parser!(u16).range(1..))]
@@ -133,7 +81,7 @@ pub struct ScanArgs {
     #[arg(long, allow_negative_numbers = true)]
     pub flat_min_level: Option<f64>,
     /// Clipped runs of one kind closer than this join one episode [default: 100ms].
-    #[arg(long, value_parser = crate::gen::parse_duration)]
+    #[arg(long, value_parser = parse_duration)]
     pub merge_gap: Option<std::time::Duration>,
     /// Measure intermodulation distortion over the tone span: smpte (sidebands f2 ± n·f1 of a
     /// low and a high tone, re the high tone), twin (f2−f1, 2f1−f2, 2f2−f1 of two close tones,
@@ -149,15 +97,6 @@ pub struct ScanArgs {
     /// Channel the --svg figure shows (from 1) [default: the first channel with a tone].
     #[arg(long, value_name = "N", requires = "svg", value_parser = clap::value_parser!(u16).range(1..))]
     pub channel: Option<u16>,
-}
-
-/// Validated settings of a scan run.
-#[derive(Debug, Clone, PartialEq)]
-pub struct ScanPlan {
-    /// Measurement settings.
-    pub settings: ScanSettings,
-    /// JSON lines instead of the readable report.
-    pub json: bool,
 }
 
 impl ScanArgs {
@@ -191,72 +130,90 @@ impl ScanArgs {
 
     /// Built-in defaults, then the configuration files, then the command line; validated.
     pub fn plan(&self) -> Result<ScanPlan, String> {
-        let files = config::layered(self.config.as_deref()).map_err(|e| e.to_string())?;
-        let merged = config::builtin_defaults()
-            .merge(files)
-            .merge(self.as_config());
+        let merged = configured(self.config.as_deref())?.merge(self.as_config());
         let mut plan = plan_from(&merged)?;
         plan.settings.channel.imd = self.imd.map(crate::dsp::imd::ImdSettings::with_method);
         Ok(plan)
     }
 }
 
-/// Validate a merged configuration into scan settings.
-pub fn plan_from(c: &ConfigFile) -> Result<ScanPlan, String> {
-    let d = config::builtin_defaults();
-    let m = &c.measure;
-    let pick = |v: Option<f64>, def: Option<f64>| v.or(def).unwrap_or(f64::NAN);
-    let band_low = pick(m.band_low_hz, d.measure.band_low_hz);
-    let band_high = pick(m.band_high_hz, d.measure.band_high_hz);
-    if !(band_low >= 0.0 && band_high > band_low) {
-        return Err(format!(
-            "band {band_low} Hz to {band_high} Hz is empty: --band-high must exceed --band-low"
-        ));
-    }
-    if let Some(f) = m.fundamental_hz {
-        if !(f > 0.0 && f.is_finite()) {
-            return Err(format!("--fundamental {f} Hz must be a positive frequency"));
+/// `brink scan`: each file is measured and reported on its own; a bad file is reported on
+/// `err` and the rest go on.
+pub fn run<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 {
+    let plan = match args.plan() {
+        Ok(p) => p,
+        Err(msg) => {
+            let _ = writeln!(err, "brink scan: {msg}");
+            return crate::EXIT_USAGE;
+        }
+    };
+    let settings = plan.settings;
+    // `--svg`: one figure per input, named after it when there are several.
+    let svg = args.svg.as_deref();
+    let figures = match svg.map(|s| crate::plot::per_file_paths(s, &args.files)) {
+        Some(Err(msg)) => {
+            let _ = writeln!(err, "brink scan: {msg}");
+            return crate::EXIT_USAGE;
+        }
+        Some(Ok(paths)) => paths,
+        None => Vec::new(),
+    };
+    let mut code = crate::EXIT_OK;
+    for (i, path) in args.files.iter().enumerate() {
+        let written = match crate::scan::scan_file(path, &settings) {
+            Ok(report) => {
+                let r = if plan.json {
+                    crate::sink::json::write_line(out, &report)
+                } else {
+                    crate::sink::text::write_scan(out, &report)
+                };
+                if let Some(fig) = figures.get(i) {
+                    let channel = args.channel.map(usize::from);
+                    let span = settings.tone_span_s;
+                    if let Err(e) =
+                        crate::plot::scan_spectrum_svg(path, &report, channel, span, fig)
+                    {
+                        let _ = writeln!(err, "brink scan: {}: {e}", path.display());
+                        code = crate::EXIT_FILE_ERROR;
+                    }
+                }
+                r.and_then(|()| out.flush())
+            }
+            Err(e) => {
+                let _ = writeln!(err, "brink scan: {}: {e}", path.display());
+                code = crate::EXIT_FILE_ERROR;
+                Ok(())
+            }
+        };
+        match written {
+            Ok(()) => {}
+            // The reader went away (`| head`): stop quietly.
+            Err(e) if e.kind() == io::ErrorKind::BrokenPipe => return code,
+            Err(e) => {
+                let _ = writeln!(err, "brink scan: cannot write output: {e}");
+                return crate::EXIT_FILE_ERROR;
+            }
         }
     }
-    let flat_tolerance = pick(m.flat_tolerance, d.measure.flat_tolerance);
-    if !(flat_tolerance > 0.0 && flat_tolerance < 0.5) {
-        return Err(format!(
-            "--flat-tolerance {flat_tolerance} must be between 0 and 0.5 of full scale"
-        ));
+    code
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::builtin_defaults;
+
+    #[test]
+    fn builtin_defaults_match_the_scan_command_line() {
+        use clap::Parser;
+        // With no options and no files, a scan runs on exactly the engine's own defaults.
+        let cli = crate::cmd::Cli::try_parse_from(["brink", "scan", "a.wav"]).unwrap();
+        let crate::cmd::Command::Scan(a) = cli.command else {
+            panic!("not scan");
+        };
+        assert_eq!(a.as_config(), ConfigFile::default());
+        let plan = plan_from(&builtin_defaults()).unwrap();
+        assert_eq!(plan.settings, crate::scan::ScanSettings::default());
+        assert!(!plan.json);
     }
-    let flat_min_level = pick(m.flat_min_level_dbfs, d.measure.flat_min_level_dbfs);
-    if flat_min_level.is_nan() || flat_min_level >= 0.0 {
-        return Err(format!(
-            "--flat-min-level {flat_min_level} dBFS must be below full scale (negative)"
-        ));
-    }
-    let secs = |v: Option<std::time::Duration>, def: Option<std::time::Duration>| {
-        v.or(def).unwrap_or_default().as_secs_f64()
-    };
-    let max_order = m.max_order.or(d.measure.max_order).unwrap_or(20);
-    let over_length = m.over_length.or(d.measure.over_length).unwrap_or(3);
-    Ok(ScanPlan {
-        settings: ScanSettings {
-            channel: ChannelSettings {
-                clip: ClipSettings {
-                    min_over_run: over_length as usize,
-                    flat_tolerance: flat_tolerance as f32,
-                    flat_min_level: 10f64.powf(flat_min_level / 20.0) as f32,
-                    ..ClipSettings::default()
-                },
-                tone: ToneSettings {
-                    band_low_hz: band_low,
-                    band_high_hz: band_high,
-                    max_order: max_order as usize,
-                    fundamental_hz: m.fundamental_hz,
-                    ..ToneSettings::default()
-                },
-                merge_gap_s: secs(c.scan.merge_gap, d.scan.merge_gap),
-                ..ChannelSettings::default()
-            },
-            tone_span_s: secs(c.scan.tone_span, d.scan.tone_span),
-            every_s: c.scan.every.map(|e| e.as_secs_f64()),
-        },
-        json: c.scan.json.or(d.scan.json).unwrap_or(false),
-    })
 }
