@@ -23,6 +23,8 @@ pub struct ScanSettings {
     pub tone_span_s: f64,
     /// Timeline slice length (s), if any.
     pub every_s: Option<f64>,
+    /// Keep every channel's tone-span samples for a figure ([`scan_file_keeping_spans`]).
+    pub keep_spans: bool,
 }
 
 impl Default for ScanSettings {
@@ -31,6 +33,7 @@ impl Default for ScanSettings {
             channel: ChannelSettings::default(),
             tone_span_s: 4.0,
             every_s: None,
+            keep_spans: false,
         }
     }
 }
@@ -51,8 +54,27 @@ pub fn centre_span(frames: u64, span_frames: u64) -> std::ops::Range<u64> {
     }
 }
 
+/// The samples of the tone span of every channel, as the scan read them (full scale ±1).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct SpanSamples {
+    /// Stream position (frame) of the span's first sample.
+    pub start: u64,
+    /// Per channel, channel 1 first.
+    pub channels: Vec<Vec<f32>>,
+}
+
 /// Scan one file.
 pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, WavError> {
+    scan_file_keeping_spans(path, settings).map(|(report, _)| report)
+}
+
+/// Scan one file, and give back the samples of its tone span as read (every channel's, when
+/// `settings.keep_spans`; none otherwise): what a figure of the span draws, without reading
+/// the file again.
+pub fn scan_file_keeping_spans(
+    path: &Path,
+    settings: &ScanSettings,
+) -> Result<(ScanReport, SpanSamples), WavError> {
     let mut src = WavSource::open(path)?;
     let info = src.info().clone();
     let rate = info.sample_rate;
@@ -64,7 +86,16 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
         .every_s
         .map(|s| (s * rate as f64).round().max(1.0) as u64);
     let analyzers: Vec<ScanChannel> = (0..info.channels)
-        .map(|c| ScanChannel::new(c + 1, rate, chs.clone(), span.clone(), slice_len))
+        .map(|c| {
+            ScanChannel::new(
+                c + 1,
+                rate,
+                chs.clone(),
+                span.clone(),
+                slice_len,
+                settings.keep_spans,
+            )
+        })
         .collect();
 
     let n_ch = info.channels;
@@ -110,9 +141,14 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
 
     let mut channels = Vec::with_capacity(n_ch);
     let mut per_channel_slices = Vec::with_capacity(n_ch);
-    for (report, slices) in finished {
+    let mut spans = SpanSamples::default();
+    for (report, slices, samples) in finished {
         channels.push(report);
         per_channel_slices.push(slices);
+        if let Some((start, x)) = samples {
+            spans.start = start;
+            spans.channels.push(x);
+        }
     }
     let timeline = slice_len.map(|len| {
         let count = per_channel_slices.iter().map(Vec::len).max().unwrap_or(0);
@@ -127,7 +163,7 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
             })
             .collect()
     });
-    Ok(ScanReport {
+    let report = ScanReport {
         format: SCAN_FORMAT.to_string(),
         file: path.display().to_string(),
         sample_rate_hz: rate,
@@ -136,7 +172,8 @@ pub fn scan_file(path: &Path, settings: &ScanSettings) -> Result<ScanReport, Wav
         duration_s: frames as f64 / rate as f64,
         channels,
         timeline,
-    })
+    };
+    Ok((report, spans))
 }
 
 /// Split interleaved frames into one plane per channel. The frames are taken in tiles small
@@ -161,30 +198,6 @@ fn split_planes(inter: &[f32], channels: usize, planes: &mut Planes) {
     }
 }
 
-/// One channel's samples (`channel` from 1) over the frames `range` of a WAV file, full scale
-/// ±1: what a figure of the tone span draws. Shorter when the file ends first.
-pub fn read_channel(path: &Path, channel: usize, range: Range<u64>) -> Result<Vec<f64>, WavError> {
-    let mut src = WavSource::open(path)?;
-    let n_ch = src.info().channels;
-    let c = channel.saturating_sub(1).min(n_ch.saturating_sub(1));
-    let mut out = Vec::with_capacity((range.end.saturating_sub(range.start)) as usize);
-    let mut inter = Vec::with_capacity(BLOCK_FRAMES * n_ch);
-    let mut pos = 0u64;
-    while pos < range.end {
-        let n = src.read_frames(&mut inter, BLOCK_FRAMES)?;
-        if n == 0 {
-            break;
-        }
-        for (i, frame) in inter.chunks_exact(n_ch).enumerate() {
-            if range.contains(&(pos + i as u64)) {
-                out.push(f64::from(frame[c]));
-            }
-        }
-        pos += n as u64;
-    }
-    Ok(out)
-}
-
 /// One channel's analyser and how far it has got.
 struct Lane {
     state: Mutex<LaneState>,
@@ -196,6 +209,9 @@ struct LaneState {
     analyzer: ScanChannel,
     next: u64,
 }
+
+/// What a channel's scan gives: its report, its slices, and its span's samples when kept.
+type Finished = (ChannelReport, Vec<IntervalReading>, Option<(u64, Vec<f32>)>);
 
 /// One channel of a scan: the channel analyser, and the `--every` slices it has given.
 struct ScanChannel {
@@ -212,11 +228,15 @@ impl ScanChannel {
         settings: ChannelSettings,
         span: Range<u64>,
         every: Option<u64>,
+        keep_span: bool,
     ) -> Self {
         let every = every.filter(|&l| l > 0);
         let mut analyzer = ChannelAnalyzer::new(channel, rate, settings)
             .keep_span(span)
             .keep_details();
+        if keep_span {
+            analyzer = analyzer.keep_span_samples();
+        }
         if let Some(len) = every {
             analyzer = analyzer.keep_window(len.min(1 << 24) as usize);
         }
@@ -259,12 +279,14 @@ impl ScanChannel {
         self.analyzer.clear_window();
     }
 
-    fn finish(&mut self, tone: &mut ToneAnalyzer) -> (ChannelReport, Vec<IntervalReading>) {
+    fn finish(&mut self, tone: &mut ToneAnalyzer) -> Finished {
         self.analyzer.close(&mut |_| {});
         if self.every.is_some() {
             self.close_slice(tone);
         }
-        (self.analyzer.report(tone), std::mem::take(&mut self.slices))
+        let report = self.analyzer.report(tone);
+        let samples = self.analyzer.take_span_samples();
+        (report, std::mem::take(&mut self.slices), samples)
     }
 }
 
@@ -425,7 +447,7 @@ impl Pool {
     }
 
     /// Finish every channel (tone analysis included), two threads at a time.
-    fn finish(self) -> Vec<(ChannelReport, Vec<IntervalReading>)> {
+    fn finish(self) -> Vec<Finished> {
         let mut analyzers: Vec<ScanChannel> = self
             .lanes
             .into_iter()

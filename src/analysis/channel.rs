@@ -221,6 +221,8 @@ impl Window {
 struct Span {
     range: Range<u64>,
     buf: Vec<f32>,
+    /// Keep the samples after the analysis (for a figure of the span).
+    keep: bool,
     /// The span's analyses, once made: tone, and IMD when asked for.
     done: Option<(Option<ToneReport>, Option<ImdResult>)>,
 }
@@ -274,9 +276,25 @@ impl ChannelAnalyzer {
         self.span = Some(Span {
             range,
             buf: Vec::with_capacity(cap),
+            keep: false,
             done: None,
         });
         self
+    }
+
+    /// Keep the span's samples after its analysis, for [`ChannelAnalyzer::take_span_samples`].
+    pub fn keep_span_samples(mut self) -> Self {
+        if let Some(span) = &mut self.span {
+            span.keep = true;
+        }
+        self
+    }
+
+    /// The span's first stream position and its samples (as far as the stream reached), when
+    /// they were kept.
+    pub fn take_span_samples(&mut self) -> Option<(u64, Vec<f32>)> {
+        let span = self.span.as_mut().filter(|s| s.keep)?;
+        Some((span.range.start, std::mem::take(&mut span.buf)))
     }
 
     /// Keep the latest `frames` samples for tone analysis of a sliding window.
@@ -374,7 +392,9 @@ impl ChannelAnalyzer {
             .as_ref()
             .and_then(|s| imd::analyze(&span.buf, rate, s));
         span.done = Some((t, i));
-        span.buf = Vec::new();
+        if !span.keep {
+            span.buf = Vec::new();
+        }
     }
 
     /// The window holds as many samples as it can.

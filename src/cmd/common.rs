@@ -80,6 +80,7 @@ pub fn plan_from(c: &ConfigFile) -> Result<ScanPlan, String> {
             },
             tone_span_s: secs(c.scan.tone_span, d.scan.tone_span),
             every_s: c.scan.every.map(|e| e.as_secs_f64()),
+            keep_spans: false,
         },
         json: c.scan.json.or(d.scan.json).unwrap_or(false),
     })

@@ -147,8 +147,10 @@ pub fn run<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 
             return crate::EXIT_USAGE;
         }
     };
-    let settings = plan.settings;
-    // `--svg`: one figure per input, named after it when there are several.
+    let mut settings = plan.settings;
+    // `--svg`: one figure per input, named after it when there are several, drawn from the
+    // samples the scan read.
+    settings.keep_spans = args.svg.is_some();
     let svg = args.svg.as_deref();
     let figures = match svg.map(|s| crate::plot::per_file_paths(s, &args.files)) {
         Some(Err(msg)) => {
@@ -160,8 +162,8 @@ pub fn run<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 
     };
     let mut code = crate::EXIT_OK;
     for (i, path) in args.files.iter().enumerate() {
-        let written = match crate::scan::scan_file(path, &settings) {
-            Ok(report) => {
+        let written = match crate::scan::scan_file_keeping_spans(path, &settings) {
+            Ok((report, spans)) => {
                 let r = if plan.json {
                     crate::sink::json::write_line(out, &report)
                 } else {
@@ -169,9 +171,8 @@ pub fn run<W: Write, E: Write>(args: &ScanArgs, out: &mut W, err: &mut E) -> u8 
                 };
                 if let Some(fig) = figures.get(i) {
                     let channel = args.channel.map(usize::from);
-                    let span = settings.tone_span_s;
                     if let Err(e) =
-                        crate::plot::scan_spectrum_svg(path, &report, channel, span, fig)
+                        crate::plot::scan_spectrum_svg(path, &report, &spans, channel, fig)
                     {
                         let _ = writeln!(err, "brink scan: {}: {e}", path.display());
                         code = crate::EXIT_FILE_ERROR;

@@ -13,8 +13,6 @@
 use std::io;
 use std::path::{Path, PathBuf};
 
-use crate::source::wav::WavError;
-
 pub mod compare;
 pub mod kit;
 pub mod spectrum;
@@ -43,15 +41,6 @@ pub enum PlotError {
         /// Why.
         #[source]
         source: io::Error,
-    },
-    /// The WAV file could not be read again for its spectrum.
-    #[error("cannot read the file again for its spectrum: {source}")]
-    Read {
-        /// The WAV file.
-        path: PathBuf,
-        /// Why.
-        #[source]
-        source: WavError,
     },
     /// `--channel` names a channel the file does not have.
     #[error("has no channel {channel} (it has {channels}); pick one with --channel")]

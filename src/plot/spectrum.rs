@@ -1,7 +1,6 @@
 //! The scan spectrum figure (`brink scan --svg`): one channel's tone span, dBFS against log
 //! frequency, the fundamental and harmonics marked by order.
 
-use std::ops::Range;
 use std::path::Path;
 
 use plotters::prelude::*;
@@ -16,6 +15,7 @@ use super::PlotError;
 use crate::analysis::report::{DistortionReport, ScanReport};
 use crate::dsp::spectrum::amplitude_spectrum;
 use crate::dsp::window::Window;
+use crate::scan::SpanSamples;
 
 /// One channel's spectrum over its tone span, ready to draw.
 #[derive(Debug, Clone, PartialEq)]
@@ -242,14 +242,15 @@ pub fn spectrum_svg(s: &Spectrum, path: &Path) -> Result<(), PlotError> {
     write_svg(path, &spectrum_svg_string(s)?)
 }
 
-/// `scan --svg`: the spectrum of one channel of the scanned `wav` over its tone span. The
-/// channel is `channel` (from 1) or else the first carrying a tone, else channel 1; returns
-/// the channel drawn.
+/// `scan --svg`: the spectrum of one channel of the scanned `wav` over its tone span, from the
+/// samples the scan read (`spans`, see `scan::scan_file_keeping_spans`). The channel is
+/// `channel` (from 1) or else the first carrying a tone, else channel 1; returns the channel
+/// drawn.
 pub fn scan_spectrum_svg(
     wav: &Path,
     report: &ScanReport,
+    spans: &SpanSamples,
     channel: Option<usize>,
-    tone_span_s: f64,
     out: &Path,
 ) -> Result<usize, PlotError> {
     let ch = match channel {
@@ -267,24 +268,18 @@ pub fn scan_spectrum_svg(
             .find(|c| c.distortion.is_some())
             .map_or(1, |c| c.channel),
     };
-    let Some(c) = report.channels.iter().find(|c| c.channel == ch) else {
+    let (Some(c), Some(samples)) = (
+        report.channels.iter().find(|c| c.channel == ch),
+        spans.channels.get(ch - 1),
+    ) else {
         return Err(PlotError::Nothing(format!(
             "{} has no channels",
             wav.display()
         )));
     };
     let rate = f64::from(report.sample_rate_hz);
-    let range: Range<u64> = match &c.distortion {
-        Some(d) => (d.span_start_s * rate).round() as u64..(d.span_end_s * rate).round() as u64,
-        None => {
-            crate::scan::centre_span(report.frames, (tone_span_s * rate).round().max(1.0) as u64)
-        }
-    };
-    let x =
-        crate::scan::read_channel(wav, ch, range.clone()).map_err(|source| PlotError::Read {
-            path: wav.to_path_buf(),
-            source,
-        })?;
+    let x: Vec<f64> = samples.iter().map(|&v| f64::from(v)).collect();
+    let start = spans.start as f64 / rate;
     let name = wav.file_name().map_or_else(
         || wav.display().to_string(),
         |n| n.to_string_lossy().into_owned(),
@@ -293,7 +288,7 @@ pub fn scan_spectrum_svg(
         &format!("{name} ch {ch}"),
         &x,
         report.sample_rate_hz,
-        (range.start as f64 / rate, range.end as f64 / rate),
+        (start, start + x.len() as f64 / rate),
         c.distortion.as_ref(),
     );
     spectrum_svg(&s, out)?;

@@ -87,14 +87,6 @@ pub enum CaptureError {
         /// The host's name.
         host: String,
     },
-    /// A channel list that cannot be used.
-    #[error("channel list '{spec}': {reason}")]
-    Channels {
-        /// The list as given.
-        spec: String,
-        /// What is wrong with it.
-        reason: String,
-    },
     /// The device's input formats could not be read.
     #[error("cannot read the input formats of '{device}': {reason}")]
     Formats {
