@@ -4,6 +4,7 @@
 pub mod channel;
 pub mod character;
 pub mod episode;
+pub mod fingerprint;
 pub mod reading;
 pub mod report;
 

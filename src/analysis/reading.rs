@@ -54,6 +54,11 @@ pub struct IntervalReading {
     /// Noise floor of the tone analysis (dBc in one harmonic's bandwidth).
     #[serde(default)]
     pub noise_floor_dbc: Option<f64>,
+    /// Whether each harmonic stood the configured resolve margin above the noise floor, by
+    /// order, as the tone analysis judged it (a reader need not judge again, with settings it
+    /// does not know).
+    #[serde(default)]
+    pub harmonics_resolved: BTreeMap<String, bool>,
 }
 
 impl IntervalReading {
@@ -99,6 +104,14 @@ impl IntervalReading {
                 })
                 .unwrap_or_default(),
             noise_floor_dbc: tone.and_then(|t| t.noise_floor_dbc),
+            harmonics_resolved: tone
+                .map(|t| {
+                    t.harmonics
+                        .iter()
+                        .map(|h| (h.order.to_string(), h.resolved))
+                        .collect()
+                })
+                .unwrap_or_default(),
         }
     }
 }

@@ -110,7 +110,7 @@ pub fn run<W: Write, E: Write>(args: &CompareArgs, out: &mut W, err: &mut E) -> 
         let drawn = match (&a, &b) {
             (Input::Fingerprint(fa), Input::Fingerprint(fb)) => compare_svg(
                 &Pair::Fingerprints {
-                    sides: [(&fa.label(), &fa.distortion), (&fb.label(), &fb.distortion)],
+                    sides: [(&fa.label, &fa.distortion), (&fb.label, &fb.distortion)],
                     min_top_order: MIN_TABLE_ORDER,
                 },
                 svg,

@@ -98,7 +98,8 @@ pub fn screen_settings(a: &ScreenArgs) -> Result<Screen, String> {
                 || p.display().to_string(),
                 |n| n.to_string_lossy().into_owned(),
             );
-            Fingerprint::from_json(&text, &label).map_err(|e| format!("{}: {e}", p.display()))
+            Fingerprint::from_snapshot_json(&text, &p.display().to_string(), &label)
+                .map_err(|e| format!("{}: {e}", p.display()))
         })
         .collect::<Result<Vec<_>, _>>()?;
     let settings = EngineSettings {

@@ -118,8 +118,8 @@ pub fn compare_fingerprints(a: &Fingerprint, b: &Fingerprint) -> FingerprintComp
         .max(MIN_TABLE_ORDER);
     let harmonics = (2..=top)
         .map(|order| {
-            let ha = a.level_dbc(order);
-            let hb = b.level_dbc(order);
+            let ha = a.harmonic(order).map(|h| (h.level_dbc, h.resolved));
+            let hb = b.harmonic(order).map(|h| (h.level_dbc, h.resolved));
             let a_dbc = ha.and_then(|h| h.0);
             let b_dbc = hb.and_then(|h| h.0);
             HarmonicDiff {
@@ -291,9 +291,11 @@ pub(crate) mod tests {
         fall: f64,
     ) -> Fingerprint {
         Fingerprint {
+            label: format!("{name} ch 1"),
             file: name.to_string(),
             source: Source::Snapshot,
             channel: 1,
+            report: None,
             distortion: DistortionReport {
                 fundamental_hz: 997.0,
                 fundamental_dbfs: Some(-6.0),

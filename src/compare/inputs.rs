@@ -5,62 +5,13 @@
 use std::io::{self, Read};
 use std::path::Path;
 
-use serde::Serialize;
-
 use super::CompareError;
-use crate::analysis::report::{ChannelReport, DistortionReport, ScanReport, SCAN_FORMAT};
+use crate::analysis::report::{ChannelReport, ScanReport, SCAN_FORMAT};
 use crate::scan::ScanSettings;
 use crate::sweep::report::{SweepReport, SWEEP_FORMAT};
 
-/// Where a fingerprint came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Source {
-    /// A WAV capture, measured now.
-    Wav,
-    /// A saved snapshot (a `scan` channel report).
-    Snapshot,
-    /// One line of `brink scan --json`.
-    ScanReport,
-}
-
-impl Source {
-    pub(crate) fn words(self) -> &'static str {
-        match self {
-            Source::Wav => "WAV capture",
-            Source::Snapshot => "snapshot",
-            Source::ScanReport => "scan report",
-        }
-    }
-}
-
-/// One harmonic fingerprint read from an input.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Fingerprint {
-    /// The file as given.
-    pub file: String,
-    /// What kind of input it was.
-    pub source: Source,
-    /// The channel (from 1).
-    pub channel: usize,
-    /// The measurement.
-    pub distortion: DistortionReport,
-}
-
-impl Fingerprint {
-    /// A short name for tables and figures: "take.wav ch 1".
-    pub fn label(&self) -> String {
-        format!("{} ch {}", file_name(&self.file), self.channel)
-    }
-
-    pub(crate) fn level_dbc(&self, order: usize) -> Option<(Option<f64>, bool)> {
-        self.distortion
-            .harmonics
-            .iter()
-            .find(|h| h.order == order)
-            .map(|h| (h.level_dbc, h.resolved))
-    }
-}
+use crate::analysis::fingerprint::file_name;
+pub use crate::analysis::fingerprint::{Fingerprint, Source};
 
 /// One sweep read from an input.
 #[derive(Debug, Clone, PartialEq)]
@@ -85,12 +36,6 @@ pub enum Input {
     Fingerprint(Fingerprint),
     /// A sweep.
     Sweep(Sweep),
-}
-
-fn file_name(path: &str) -> String {
-    Path::new(path)
-        .file_name()
-        .map_or_else(|| path.to_string(), |n| n.to_string_lossy().into_owned())
 }
 
 /// Read one input and tell what it is. `channel` (from 1) picks the channel of a WAV capture
@@ -203,13 +148,8 @@ pub fn parse_json_input(name: &str, bytes: &[u8], channel: usize) -> Result<Inpu
             let report: ChannelReport =
                 serde_json::from_value(value).map_err(|e| bad("snapshot", e))?;
             let ch = report.channel;
-            match report.distortion {
-                Some(distortion) => Ok(Input::Fingerprint(Fingerprint {
-                    file: name.to_string(),
-                    source: Source::Snapshot,
-                    channel: ch,
-                    distortion,
-                })),
+            match Fingerprint::of_channel(name, Source::Snapshot, report) {
+                Some(f) => Ok(Input::Fingerprint(f)),
                 None => Err(CompareError::NoTone {
                     path: name.to_string(),
                     channel: ch,
@@ -242,13 +182,8 @@ fn pick_channel(
             channels: count,
         });
     };
-    match c.distortion {
-        Some(distortion) => Ok(Fingerprint {
-            file: name.to_string(),
-            source,
-            channel,
-            distortion,
-        }),
+    match Fingerprint::of_channel(name, source, c) {
+        Some(f) => Ok(f),
         None => Err(CompareError::NoTone {
             path: name.to_string(),
             channel,

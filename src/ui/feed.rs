@@ -12,7 +12,7 @@ use std::time::{Duration, Instant};
 
 use crossbeam_channel::Sender;
 
-use super::model::{harmonic_report, Update};
+use super::model::{harmonic_report, resolved_by_default, Update};
 use crate::analysis::report::{ClipEvent, DistortionReport};
 use crate::live::engine::{LiveEvent, Onset};
 use crate::live::run::Totals;
@@ -106,7 +106,14 @@ fn distortion(c: &IntervalReading, t_s: f64) -> Option<DistortionReport> {
         .filter_map(|(k, v)| {
             let order: usize = k.parse().ok()?;
             let phase = c.harmonics_phase_deg.get(k).copied().unwrap_or(0.0);
-            Some(harmonic_report(order, f0, *v, phase, c.noise_floor_dbc))
+            // The analysis's own judgement, with the logger's settings; a log written before
+            // summaries carried it is judged with the default margin.
+            let resolved = c
+                .harmonics_resolved
+                .get(k)
+                .copied()
+                .unwrap_or_else(|| resolved_by_default(*v, c.noise_floor_dbc));
+            Some(harmonic_report(order, f0, *v, phase, resolved))
         })
         .collect();
     harmonics.sort_by_key(|h| h.order);
@@ -329,6 +336,34 @@ mod tests {
             Update::Ended(_)
         ));
         assert!(parse_start("time,kind,t_s\n").is_err());
+    }
+
+    /// A harmonic is marked resolved as the logger's analysis judged it (with the logger's
+    /// resolve margin), not by a margin the reader assumes; a log without the judgement falls
+    /// back to the default margin of 10 dB.
+    #[test]
+    fn a_followed_summary_keeps_the_analysis_judgement_of_each_harmonic() {
+        let line = |resolved: &str| {
+            format!(
+                r#"{{"kind":"summary","time":"x","t_s":2.0,"channels":[{{"channel":1,"sample_peak_dbfs":-6.0,"true_peak_dbtp":-5.9,"rms_dbfs":-9.0,"overs":0,"flat_tops":0,"fundamental_hz":220.0,"fundamental_dbfs":-7.0,"thd_pct":1.0,"thd_n_db":-40.0,"harmonics_dbc":{{"2":-95.0,"3":-40.0}},"noise_floor_dbc":-100.0{resolved}}}]}}"#
+            )
+        };
+        let flags = |text: &str| -> Vec<bool> {
+            match from_log_line(text).pop() {
+                Some(Update::Tone {
+                    distortion: Some(d),
+                    ..
+                }) => d.harmonics.iter().map(|h| h.resolved).collect(),
+                other => panic!("{other:?}"),
+            }
+        };
+        // Judged by an analysis with a 3 dB margin: H2 (5 dB above the floor) resolved.
+        assert_eq!(
+            flags(&line(r#","harmonics_resolved":{"2":true,"3":true}"#)),
+            vec![true, true]
+        );
+        // No judgement in the log: the default 10 dB margin leaves H2 unresolved.
+        assert_eq!(flags(&line("")), vec![false, true]);
     }
 
     /// An output stream that fails (not a broken pipe) while `fail` is set.

@@ -91,8 +91,7 @@ pub fn save_snapshots(d: &Dashboard, dir: &Path) -> String {
             continue;
         };
         let path = dir.join(format!("snapshot-{name}.json"));
-        let written = f
-            .to_json()
+        let written = model::snapshot_json(f)
             .and_then(|text| std::fs::write(&path, text + "\n").map_err(|e| e.to_string()));
         match written {
             Ok(()) => saved.push(path.display().to_string()),

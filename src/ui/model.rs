@@ -3,7 +3,6 @@
 
 use std::collections::VecDeque;
 
-use crate::analysis::character;
 use crate::analysis::report::{ChannelReport, ClipEvent, DistortionReport, HarmonicReport};
 use crate::dsp::ballistics::Ballistics;
 use crate::dsp::clip::ClipKind;
@@ -20,74 +19,18 @@ pub const RECENT_CLIPS: usize = 64;
 /// Harmonics drawn as bars (H1 and H2..H10).
 pub const BAR_ORDERS: usize = 10;
 
-/// A harmonic fingerprint with a name: what the harmonic view, snapshots and comparisons show.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Fingerprint {
-    /// Where it came from ("ch 2 at 12.3 s", a file name).
-    pub label: String,
-    /// The measurement, in `scan`'s report form.
-    pub distortion: DistortionReport,
-    /// The whole channel report (levels and clipping too), once stored or loaded: what a
-    /// snapshot file holds.
-    pub report: Option<ChannelReport>,
-}
+pub use crate::analysis::fingerprint::Fingerprint;
+use crate::analysis::fingerprint::Source;
 
-impl Fingerprint {
-    /// The level (dBc) of harmonic `order` (1 = the fundamental, 0 dBc by definition).
-    pub fn level_dbc(&self, order: usize) -> Option<f64> {
-        if order == 1 {
-            return Some(0.0);
-        }
-        self.distortion
-            .harmonics
-            .iter()
-            .find(|h| h.order == order)
-            .and_then(|h| h.level_dbc)
-    }
-
-    /// The character line.
-    pub fn character(&self) -> String {
-        let d = &self.distortion;
-        character::describe(d.thd_pct, d.odd_even_db, d.falloff_db_per_octave)
-    }
-
-    /// Read a snapshot back: a `scan` channel report, or a whole `scan` report (its first
-    /// channel with a tone). `label` names it.
-    pub fn from_json(text: &str, label: &str) -> Result<Fingerprint, String> {
-        let value: serde_json::Value =
-            serde_json::from_str(text).map_err(|e| format!("not JSON: {e}"))?;
-        let channel = if value.get("channels").is_some() {
-            let report: crate::analysis::report::ScanReport =
-                serde_json::from_value(value).map_err(|e| format!("not a scan report: {e}"))?;
-            report
-                .channels
-                .into_iter()
-                .find(|c| c.distortion.is_some())
-                .ok_or("the scan report has no channel with a tone")?
-        } else {
-            serde_json::from_value::<ChannelReport>(value)
-                .map_err(|e| format!("not a channel report: {e}"))?
-        };
-        let distortion = channel
-            .distortion
-            .clone()
-            .ok_or("the channel report has no distortion measurement")?;
-        Ok(Fingerprint {
-            label: label.to_string(),
-            distortion,
-            report: Some(channel),
-        })
-    }
-
-    /// The snapshot file's text: a `scan` channel report, pretty-printed.
-    pub fn to_json(&self) -> Result<String, String> {
-        let report = self.report.clone().unwrap_or_else(|| {
-            let mut r = ChannelView::new(0).to_report();
-            r.distortion = Some(self.distortion.clone());
-            r
-        });
-        serde_json::to_string_pretty(&report).map_err(|e| e.to_string())
-    }
+/// A snapshot file's text: the fingerprint's channel report (levels and clipping as the
+/// dashboard had them when it was stored), pretty-printed.
+pub fn snapshot_json(f: &Fingerprint) -> Result<String, String> {
+    let report = f.report.as_deref().cloned().unwrap_or_else(|| {
+        let mut r = ChannelView::new(f.channel).to_report();
+        r.distortion = Some(f.distortion.clone());
+        r
+    });
+    serde_json::to_string_pretty(&report).map_err(|e| e.to_string())
 }
 
 /// A clip in the recent list.
@@ -433,6 +376,9 @@ impl Dashboard {
                 if let Some(c) = self.lane(channel) {
                     c.tone = distortion.map(|d| Fingerprint {
                         label: format!("ch {channel} at {}", clock(t_s)),
+                        file: String::new(),
+                        source: Source::Live,
+                        channel,
                         distortion: d,
                         report: None,
                     });
@@ -558,7 +504,7 @@ impl Dashboard {
         let name = if slot == 0 { "A" } else { "B" };
         let found = self.focused().and_then(|c| {
             c.tone.clone().map(|mut f| {
-                f.report = Some(c.to_report());
+                f.report = Some(Box::new(c.to_report()));
                 f
             })
         });
@@ -625,21 +571,24 @@ pub fn harmonic_report(
     f0: f64,
     level_dbc: Option<f64>,
     phase: f64,
-    floor: Option<f64>,
+    resolved: bool,
 ) -> HarmonicReport {
     HarmonicReport {
         order,
         freq_hz: f0 * order as f64,
         level_dbc,
         phase_deg: phase,
-        // As the tone analysis decides it: 10 dB above the noise floor.
-        resolved: match (level_dbc, floor) {
-            (Some(l), Some(f)) => {
-                l > f + crate::dsp::tone::ToneSettings::default().resolve_margin_db
-            }
-            (Some(_), None) => true,
-            (None, _) => false,
-        },
+        resolved,
+    }
+}
+
+/// Whether a harmonic at `level_dbc` stands the default resolve margin above `floor` (dBc): the
+/// judgement for readings that do not carry the analysis's own.
+pub fn resolved_by_default(level_dbc: Option<f64>, floor: Option<f64>) -> bool {
+    match (level_dbc, floor) {
+        (Some(l), Some(f)) => l > f + crate::dsp::tone::ToneSettings::default().resolve_margin_db,
+        (Some(_), None) => true,
+        (None, _) => false,
     }
 }
 

@@ -94,6 +94,7 @@ pub(crate) fn channel_summary(channel: usize, v: f64) -> IntervalReading {
         falloff_db_per_octave: None,
         harmonics_phase_deg: BTreeMap::new(),
         noise_floor_dbc: None,
+        harmonics_resolved: BTreeMap::new(),
         harmonics_dbc: harmonics,
     }
 }

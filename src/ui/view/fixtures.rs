@@ -13,7 +13,7 @@ use crate::dsp::clip::ClipKind;
 use crate::live::engine::{Engine, EngineSettings, MeterFrame};
 use crate::live::session::SourceMeta;
 use crate::ui::feed::from_live;
-use crate::ui::model::{harmonic_report, Dashboard, Fingerprint, Update};
+use crate::ui::model::{harmonic_report, resolved_by_default, Dashboard, Fingerprint, Update};
 
 pub(super) const PLAIN: Theme = Theme { color: false };
 pub(super) const COLOUR: Theme = Theme { color: true };
@@ -84,6 +84,9 @@ pub(super) fn text(t: &Terminal<TestBackend>) -> String {
 pub(super) fn fingerprint(label: &str, levels: &[(usize, f64)]) -> Fingerprint {
     Fingerprint {
         label: label.into(),
+        file: String::new(),
+        source: crate::analysis::fingerprint::Source::Live,
+        channel: 1,
         distortion: DistortionReport {
             fundamental_hz: 1000.0,
             fundamental_dbfs: Some(-6.0),
@@ -100,7 +103,10 @@ pub(super) fn fingerprint(label: &str, levels: &[(usize, f64)]) -> Fingerprint {
             span_end_s: 1.0,
             harmonics: levels
                 .iter()
-                .map(|&(k, l)| harmonic_report(k, 1000.0, Some(l), 0.0, Some(-140.0)))
+                .map(|&(k, l)| {
+                    let resolved = resolved_by_default(Some(l), Some(-140.0));
+                    harmonic_report(k, 1000.0, Some(l), 0.0, resolved)
+                })
                 .collect(),
         },
         report: None,
