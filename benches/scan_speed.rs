@@ -3,7 +3,8 @@
 //! - a 10-minute stereo 48 kHz 24-bit programme;
 //! - a 1-minute 32-channel 48 kHz 24-bit multitrack.
 //!
-//! Run with `cargo bench --bench scan_speed` (`SCAN_SPEED_RUNS=N` for fewer or more runs). Both
+//! Run with `cargo bench --bench scan_speed` (`SCAN_SPEED_RUNS=N` for fewer or more runs;
+//! `SCAN_SPEED_BASELINE=PATH` adds another brink binary, an earlier build, to each round). All
 //! programs run as child processes, alternating so that drifts in machine speed hit both alike;
 //! each run's wall time, CPU time (user + system) and peak resident memory come from the
 //! kernel's accounting of the child (`wait4`). Prints best and median figures and brink's ratio
@@ -136,12 +137,19 @@ fn bench_file(
     sox_ok: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let brink = env!("CARGO_BIN_EXE_brink");
+    let baseline = std::env::var_os("SCAN_SPEED_BASELINE");
     let mut b = Vec::new();
+    let mut base = Vec::new();
     let mut s = Vec::new();
     for _ in 0..runs {
         b.push(run_child(
             Command::new(brink).arg("scan").arg("--json").arg(path),
         )?);
+        if let Some(other) = &baseline {
+            base.push(run_child(
+                Command::new(other).arg("scan").arg("--json").arg(path),
+            )?);
+        }
         if sox_ok {
             s.push(run_child(
                 Command::new("sox").arg(path).args(["-n", "stats"]),
@@ -165,6 +173,14 @@ fn bench_file(
         (wm.as_secs_f64(), cm.as_secs_f64())
     };
     let (bw, bc) = show("brink", &b);
+    if !base.is_empty() {
+        let (ow, oc) = show("before", &base);
+        println!(
+            "  brink / before: wall {:.2}, CPU {:.2} (medians)",
+            bw / ow,
+            bc / oc
+        );
+    }
     if sox_ok {
         let (sw, sc) = show("sox", &s);
         println!(
