@@ -13,34 +13,11 @@ use serde_json::Value;
 
 use crate::util::*;
 
-fn gen(dir: &std::path::Path, name: &str, args: &[&str]) -> std::path::PathBuf {
-    let f = dir.join(name);
-    brink().arg("gen").arg(&f).args(args).assert().success();
-    f
-}
-
-fn lines(out: &[u8]) -> Vec<Value> {
-    String::from_utf8_lossy(out)
-        .lines()
-        .map(|l| serde_json::from_str(l).unwrap())
-        .collect()
-}
-
 /// Per interval end time (s), each channel's reading.
 type Intervals = Vec<(f64, Vec<Value>)>;
 
 fn scan_intervals(file: &std::path::Path, every: &str) -> Intervals {
-    let out = brink()
-        .args(["scan", "--json", "--every", every])
-        .arg(file)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let report = &lines(&out.stdout)[0];
+    let report = scan_json(file, &["--every", every]);
     report["timeline"]
         .as_array()
         .unwrap()
@@ -65,7 +42,7 @@ fn log_intervals(file: &std::path::Path, every: &str) -> Intervals {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    lines(&out.stdout)
+    records(&String::from_utf8_lossy(&out.stdout))
         .into_iter()
         .filter(|r| r["kind"] == "summary")
         .map(|r| {

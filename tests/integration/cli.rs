@@ -11,24 +11,6 @@ fn tmp() -> tempfile::TempDir {
     tempfile::tempdir().unwrap()
 }
 
-fn scan_json(path: &std::path::Path, extra: &[&str]) -> Value {
-    let out = brink()
-        .arg("scan")
-        .arg("--json")
-        .args(extra)
-        .arg(path)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let text = String::from_utf8(out.stdout).unwrap();
-    assert_eq!(text.lines().count(), 1, "one object per file, one per line");
-    serde_json::from_str(text.trim()).unwrap()
-}
-
 /// The `brink-scan-1` key names are fixed by the issue; every one must be present.
 #[test]
 fn json_report_has_the_fixed_keys() {

@@ -13,18 +13,6 @@ use serde_json::Value;
 
 use crate::util::*;
 
-fn gen(dir: &std::path::Path, name: &str, args: &[&str]) -> std::path::PathBuf {
-    let f = dir.join(name);
-    brink().arg("gen").arg(&f).args(args).assert().success();
-    f
-}
-
-fn records(text: &str) -> Vec<Value> {
-    text.lines()
-        .map(|l| serde_json::from_str(l).unwrap())
-        .collect()
-}
-
 /// A clean second, then flat tops at −6 dBFS: start first, stop last, a summary per interval
 /// with the right fundamental, one clip record for the whole episode at the right level.
 #[test]

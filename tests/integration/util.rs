@@ -82,6 +82,39 @@ pub fn brink() -> assert_cmd::Command {
     assert_cmd::Command::cargo_bin("brink").unwrap()
 }
 
+/// `brink gen DIR/NAME ARGS...`: a test file made by the real generator.
+pub fn gen(dir: &std::path::Path, name: &str, args: &[&str]) -> std::path::PathBuf {
+    let f = dir.join(name);
+    brink().arg("gen").arg(&f).args(args).assert().success();
+    f
+}
+
+/// Lines of NDJSON, each parsed.
+pub fn records(text: &str) -> Vec<serde_json::Value> {
+    text.lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect()
+}
+
+/// `brink scan --json EXTRA... PATH`: its one report line, parsed.
+pub fn scan_json(path: &std::path::Path, extra: &[&str]) -> serde_json::Value {
+    let out = brink()
+        .arg("scan")
+        .arg("--json")
+        .args(extra)
+        .arg(path)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert_eq!(text.lines().count(), 1, "one object per file, one per line");
+    serde_json::from_str(text.trim()).unwrap()
+}
+
 /// Bytes of a canonical 44-byte-header WAV (`fmt ` of 16 bytes), with the declared data length
 /// and format fields taken as given, so tests can also build broken files.
 pub fn wav_bytes(
