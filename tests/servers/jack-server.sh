@@ -131,6 +131,18 @@ stop() {
     echo "jack-server: $name stopped"
 }
 
+# JACK keeps a registry of its servers in /dev/shm, with room for a few. The entry of a server
+# that died hard stays behind, and once the dead server's pid is reused by another process its
+# slot looks taken: after enough hard stops jackd refuses with "Too many servers already
+# active". When no JACK server runs on this machine at all, nothing uses the registry or the
+# segments it lists: remove them, and jackd makes a new registry.
+clear_stale_registry() {
+    if grep -qsx -e jackd -e jackdmp /proc/[0-9]*/comm; then
+        return 0
+    fi
+    rm -f /dev/shm/jack-shm-registry /dev/shm/jack-"$(id -u)"-* 2>/dev/null || true
+}
+
 start() {
     local name=$1 tone=${2:-} dir t0 i
     check_name "$name"
@@ -142,6 +154,7 @@ start() {
     rm -rf "$dir"
     mkdir -p "$dir"
     rm -f /dev/shm/jack_"$name"_* /dev/shm/jack_sem.*_"$name"_* 2>/dev/null || true
+    clear_stale_registry
     t0=$(now_ms)
     JACK_DEFAULT_SERVER=$name spawn "$dir/jackd.pid" "$dir/jackd.log" \
         jackd --no-realtime -d dummy -r "$RATE" -p "$PERIOD" -C 2 -P 2
