@@ -206,6 +206,11 @@ impl ClipDetector {
                         continue;
                     }
                 }
+                let k = d.extend_plateau(chunk, i);
+                if k > i {
+                    i = k;
+                    continue;
+                }
                 d.step(chunk[i], &mut emit);
                 i += 1;
             }
@@ -238,6 +243,48 @@ impl ClipDetector {
                 .run
                 .as_ref()
                 .is_none_or(|r| (r.len as usize) < self.s.flat_min_run)
+    }
+
+    /// Inside a plateau with nothing else in flight (no over, no plateau awaiting judgement),
+    /// the samples that stay in the plateau's band and below full scale only extend it: take
+    /// them in a tight loop, setting the state exactly as stepping would (the run's sum is
+    /// added in the same order). Returns the index of the first sample left to step.
+    #[inline(always)]
+    fn extend_plateau(&mut self, chunk: &[f32], i: usize) -> usize {
+        if self.over.is_some() || self.pending.is_some() {
+            return i;
+        }
+        let Some(r) = self.run.as_mut() else {
+            return i;
+        };
+        let (tol, fs) = (self.s.flat_tolerance, self.s.full_scale);
+        let (mut lo, mut hi, mut sum) = (r.min, r.max, r.sum);
+        let mut k = i;
+        while k < chunk.len() {
+            let x = chunk[k];
+            let nlo = if x < lo { x } else { lo };
+            let nhi = if x > hi { x } else { hi };
+            // As `step`: a NaN, a sample at full scale or one outside the band is stepped (a
+            // NaN band, from a run that began on a NaN, is never inside).
+            let inside = nhi - nlo <= tol;
+            if !inside || x.is_nan() || x.abs() >= fs {
+                break;
+            }
+            lo = nlo;
+            hi = nhi;
+            sum += x as f64;
+            k += 1;
+        }
+        if k > i {
+            r.min = lo;
+            r.max = hi;
+            r.sum = sum;
+            r.len += (k - i) as u64;
+            self.last2 = if k - i >= 2 { chunk[k - 2] } else { self.last1 };
+            self.last1 = chunk[k - 1];
+            self.pos += (k - i) as u64;
+        }
+        k
     }
 
     /// Consume the unmarked samples `chunk[i..j]` (`j > i`) while idle: each ends the run before
@@ -448,6 +495,47 @@ mod tests {
             d.finish(|r| slow.push(r));
             assert_eq!(fast, slow, "case {case}");
             assert!(!fast.is_empty(), "case {case} exercises runs");
+        }
+    }
+
+    /// Plateaus broken by a NaN, by reaching full scale, or by leaving their band one sample
+    /// into a chunk, at every offset within the 64-sample chunks: processing and stepping agree.
+    #[test]
+    fn plateau_ends_of_every_kind_match_the_sample_by_sample_path() {
+        let s = ClipSettings::default();
+        for offset in 0..70 {
+            let mut x: Vec<f32> = (0..offset).map(|i| 0.1 * (i as f32 * 0.7).sin()).collect();
+            for end in [f32::NAN, 1.0, 0.2, -0.6] {
+                x.extend([
+                    0.35, 0.3, 0.5, 0.5, 0.5001, 0.5, 0.5, 0.4999, 0.5, end, 0.3, 0.1,
+                ]);
+                x.extend(std::iter::repeat_n(1.0, 4));
+                x.extend([0.2, -0.5, -0.5, -0.5, -0.5, -0.2]);
+            }
+            let fast = runs(&x, s);
+            let mut d = ClipDetector::new(s);
+            let mut slow = Vec::new();
+            for &v in &x {
+                d.step(v, &mut |r| slow.push(r));
+            }
+            d.finish(|r| slow.push(r));
+            assert_eq!(fast, slow, "offset {offset}");
+            assert!(fast.len() >= 4, "offset {offset}: {fast:?}");
+            // The whole state, not only what it reports, after every piece of the stream.
+            for piece in [13, 64] {
+                let (mut a, mut b) = (ClipDetector::new(s), ClipDetector::new(s));
+                for (n, p) in x.chunks(piece).enumerate() {
+                    a.process(p, |_| {});
+                    for &v in p {
+                        b.step(v, &mut |_| {});
+                    }
+                    assert_eq!(
+                        format!("{a:?}"),
+                        format!("{b:?}"),
+                        "offset {offset} piece {n}"
+                    );
+                }
+            }
         }
     }
 
