@@ -458,6 +458,18 @@ mod tests {
         out
     }
 
+    /// The reference: the same samples through the state machine one step at a time, with none
+    /// of `process`'s fast paths.
+    fn stepped(x: &[f32], s: ClipSettings) -> Vec<ClipRun> {
+        let mut d = ClipDetector::new(s);
+        let mut out = Vec::new();
+        for &v in x {
+            d.step(v, &mut |r| out.push(r));
+        }
+        d.finish(|r| out.push(r));
+        out
+    }
+
     /// The quiet-chunk fast path must report exactly what the per-sample path reports.
     #[test]
     fn fast_path_matches_the_sample_by_sample_path() {
@@ -487,12 +499,7 @@ mod tests {
                 .collect();
             let s = ClipSettings::default();
             let fast = runs(&x, s);
-            let mut d = ClipDetector::new(s);
-            let mut slow = Vec::new();
-            for &v in &x {
-                d.step(v, &mut |r| slow.push(r));
-            }
-            d.finish(|r| slow.push(r));
+            let slow = stepped(&x, s);
             assert_eq!(fast, slow, "case {case}");
             assert!(!fast.is_empty(), "case {case} exercises runs");
         }
@@ -513,12 +520,7 @@ mod tests {
                 x.extend([0.2, -0.5, -0.5, -0.5, -0.5, -0.2]);
             }
             let fast = runs(&x, s);
-            let mut d = ClipDetector::new(s);
-            let mut slow = Vec::new();
-            for &v in &x {
-                d.step(v, &mut |r| slow.push(r));
-            }
-            d.finish(|r| slow.push(r));
+            let slow = stepped(&x, s);
             assert_eq!(fast, slow, "offset {offset}");
             assert!(fast.len() >= 4, "offset {offset}: {fast:?}");
             // The whole state, not only what it reports, after every piece of the stream.
